@@ -1,0 +1,464 @@
+"""Plotly figure builders for the dashboard.
+
+Every builder is a pure function: tables in, ``go.Figure`` out, no Streamlit, no state,
+no engineering computation (rates, fits, forecasts and stages come from ``core``). They are
+tested without Streamlit in ``tests/test_charts.py`` on small hand-made tables in the shape
+of the data contracts in ``DEVELOPERS.md``.
+
+Colours
+-------
+All colours come from :data:`PALETTE`, one constant. The hues are the eight colours of the
+Okabe-Ito colour-universal-design set (M. Okabe and K. Ito, "Color Universal Design (CUD):
+How to make figures and presentations that are friendly to colorblind people", 2008), chosen
+because they stay distinguishable under protanopia, deuteranopia and tritanopia. The mapping
+of hues to quantities is our own and deliberately avoids the common trade habit of green oil,
+red gas and blue water:
+
+* oil: black, gas: orange, water: reddish purple;
+* fitted curve: vermillion (dashed), forecast: blue (dotted), excluded months: grey crosses;
+* GOR: orange line, pressure: bluish green, Rsi and bubble point reference lines in the
+  same hue as their quantity, dashed;
+* the four depletion stages as light tints, ordered light to dark in "urgency": stage 1 sky
+  blue, stage 2 yellow, stage 3 orange, stage 4 reddish purple;
+* planning statuses: ahead sky blue, open bluish green, closing orange, passed vermillion,
+  not applicable grey.
+
+Line style (solid, dashed, dotted) and marker shape always repeat the colour's message, so a
+figure printed in grey stays readable.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Iterable, Mapping
+from typing import Any
+
+import pandas as pd
+import plotly.graph_objects as go
+
+# Okabe & Ito (2008) colour-universal-design set; the mapping to quantities is ours.
+_OI = {
+    "black": "#000000",
+    "orange": "#E69F00",
+    "sky_blue": "#56B4E9",
+    "bluish_green": "#009E73",
+    "yellow": "#F0E442",
+    "blue": "#0072B2",
+    "vermillion": "#D55E00",
+    "reddish_purple": "#CC79A7",
+}
+
+PALETTE: dict[str, Any] = {
+    "oil": _OI["black"],
+    "gas": _OI["orange"],
+    "water": _OI["reddish_purple"],
+    "fitted": _OI["vermillion"],
+    "forecast": _OI["blue"],
+    "excluded": "#8C8C8C",
+    "fit_window": _OI["sky_blue"],
+    "gor": _OI["orange"],
+    "pressure": _OI["bluish_green"],
+    "event": "#4D4D4D",
+    "expected": _OI["blue"],
+    "stage": {
+        1: _OI["sky_blue"],
+        2: _OI["yellow"],
+        3: _OI["orange"],
+        4: _OI["reddish_purple"],
+        "not_applicable": "#BBBBBB",
+    },
+    "planning": {
+        "window_ahead": _OI["sky_blue"],
+        "window_open": _OI["bluish_green"],
+        "window_closing": _OI["orange"],
+        "window_passed": _OI["vermillion"],
+        "not_applicable": "#BBBBBB",
+    },
+    "stage_tint_opacity": 0.18,
+}
+
+STAGE_LABELS = {
+    1: "Stage 1: above bubble point",
+    2: "Stage 2: gas immobile, GOR below Rsi",
+    3: "Stage 3: free gas flowing, GOR rising",
+    4: "Stage 4: after the GOR peak",
+}
+
+PLANNING_LABELS = {
+    "window_ahead": "window ahead",
+    "window_open": "window open",
+    "window_closing": "window closing",
+    "window_passed": "window passed",
+    "not_applicable": "not applicable",
+}
+
+_LAYOUT = dict(
+    template="plotly_white",
+    margin=dict(l=60, r=20, t=50, b=40),
+    legend=dict(orientation="h", yanchor="bottom", y=1.02, xanchor="left", x=0.0),
+    hovermode="x unified",
+    font=dict(size=12),
+)
+
+
+def _empty(title: str, message: str) -> go.Figure:
+    fig = go.Figure()
+    fig.add_annotation(text=message, showarrow=False, xref="paper", yref="paper", x=0.5, y=0.5)
+    fig.update_layout(title=title, **_LAYOUT)
+    fig.update_xaxes(visible=False)
+    fig.update_yaxes(visible=False)
+    return fig
+
+
+def _positive(frame: pd.DataFrame, column: str) -> pd.DataFrame:
+    """Rows where ``column`` is a finite positive number (a log axis cannot show the rest)."""
+    if frame is None or column not in frame:
+        return pd.DataFrame(columns=["month", column])
+    values = pd.to_numeric(frame[column], errors="coerce")
+    return frame.loc[values.gt(0) & values.notna()]
+
+
+def rate_time_figure(
+    history: pd.DataFrame,
+    *,
+    fitted: pd.DataFrame | None = None,
+    forecast: pd.DataFrame | None = None,
+    excluded_months: Iterable[Any] = (),
+    fit_window: tuple[Any, Any] | None = None,
+    econ_limit_rate: float | None = None,
+    stream: str = "oil",
+    title: str | None = None,
+) -> go.Figure:
+    """Rate against time on a log axis.
+
+    Parameters
+    ----------
+    history : DataFrame
+        One well's rows of the tidy monthly table: ``month`` and ``oil_rate_bbl_d``
+        (or ``gas_rate_mcf_d`` when ``stream="gas"``). [bbl/d] or [Mcf/d]
+    fitted : DataFrame, optional
+        ``month`` and ``rate``: the fitted Arps curve over the fit window, from ``core``.
+    forecast : DataFrame, optional
+        ``month`` and ``rate``: the forecast to the economic limit, from ``core``.
+    excluded_months : iterable of month starts
+        Months left out of the fit (shut-ins, low uptime, engineer exclusions).
+    fit_window : (start, end), optional
+        First and last month of the fit window, shaded.
+    econ_limit_rate : float, optional
+        Economic-limit rate drawn as a horizontal line. [bbl/d] or [Mcf/d]
+    stream : {"oil", "gas"}
+    """
+    col = "oil_rate_bbl_d" if stream == "oil" else "gas_rate_mcf_d"
+    unit = "bbl/d" if stream == "oil" else "Mcf/d"
+    title = title or f"{stream.capitalize()} rate against time"
+    actual = _positive(history, col)
+    if actual.empty and (forecast is None or forecast.empty):
+        return _empty(title, f"No positive {stream} rates to draw")
+    fig = go.Figure()
+    if fit_window is not None and fit_window[0] is not None and pd.notna(fit_window[0]):
+        fig.add_vrect(
+            x0=pd.Timestamp(fit_window[0]),
+            x1=pd.Timestamp(fit_window[1]) if pd.notna(fit_window[1]) else actual["month"].max(),
+            fillcolor=PALETTE["fit_window"],
+            opacity=PALETTE["stage_tint_opacity"],
+            line_width=0,
+            annotation_text="fit window",
+            annotation_position="top left",
+        )
+    excluded = pd.to_datetime(pd.Series(list(excluded_months), dtype="object"))
+    is_excluded = actual["month"].isin(excluded) if len(excluded) else pd.Series(False, index=actual.index)
+    used = actual.loc[~is_excluded]
+    left_out = actual.loc[is_excluded]
+    fig.add_trace(
+        go.Scatter(
+            x=used["month"], y=used[col], mode="markers", name=f"actual {stream}",
+            marker=dict(color=PALETTE[stream], size=5, symbol="circle"),
+        )
+    )
+    if not left_out.empty:
+        fig.add_trace(
+            go.Scatter(
+                x=left_out["month"], y=left_out[col], mode="markers", name="excluded from fit",
+                marker=dict(color=PALETTE["excluded"], size=8, symbol="x"),
+            )
+        )
+    if fitted is not None and not fitted.empty:
+        f = _positive(fitted, "rate")
+        fig.add_trace(
+            go.Scatter(
+                x=f["month"], y=f["rate"], mode="lines", name="fitted curve",
+                line=dict(color=PALETTE["fitted"], width=2, dash="dash"),
+            )
+        )
+    if forecast is not None and not forecast.empty:
+        f = _positive(forecast, "rate")
+        fig.add_trace(
+            go.Scatter(
+                x=f["month"], y=f["rate"], mode="lines", name="forecast",
+                line=dict(color=PALETTE["forecast"], width=2, dash="dot"),
+            )
+        )
+    if econ_limit_rate is not None and pd.notna(econ_limit_rate) and econ_limit_rate > 0:
+        fig.add_hline(
+            y=float(econ_limit_rate), line=dict(color=PALETTE["event"], dash="dashdot", width=1),
+            annotation_text=f"economic limit {econ_limit_rate:.3g} {unit}",
+            annotation_position="bottom right",
+        )
+    fig.update_layout(title=title, **_LAYOUT)
+    fig.update_yaxes(type="log", title_text=f"{stream} rate [{unit}]")
+    fig.update_xaxes(title_text="month")
+    return fig
+
+
+def rate_cumulative_figure(
+    history: pd.DataFrame,
+    forecast: pd.DataFrame | None = None,
+    *,
+    title: str = "Oil rate against cumulative oil",
+) -> go.Figure:
+    """Oil rate against cumulative oil (linear axes).
+
+    ``history`` has ``cum_oil_bbl`` and ``oil_rate_bbl_d``; ``forecast`` has ``cum_oil_bbl``
+    and ``rate``. Both come from ``core`` (tidy monthly table and forecast table).
+    """
+    actual = _positive(history, "oil_rate_bbl_d")
+    if actual.empty:
+        return _empty(title, "No positive oil rates to draw")
+    fig = go.Figure()
+    fig.add_trace(
+        go.Scatter(
+            x=actual["cum_oil_bbl"], y=actual["oil_rate_bbl_d"], mode="markers", name="actual oil",
+            marker=dict(color=PALETTE["oil"], size=5),
+        )
+    )
+    if forecast is not None and not forecast.empty and "cum_oil_bbl" in forecast:
+        f = _positive(forecast, "rate")
+        fig.add_trace(
+            go.Scatter(
+                x=f["cum_oil_bbl"], y=f["rate"], mode="lines", name="forecast",
+                line=dict(color=PALETTE["forecast"], width=2, dash="dot"),
+            )
+        )
+    layout = dict(_LAYOUT, hovermode="closest")
+    fig.update_layout(title=title, **layout)
+    fig.update_xaxes(title_text="cumulative oil [bbl]")
+    fig.update_yaxes(title_text="oil rate [bbl/d]", rangemode="tozero")
+    return fig
+
+
+def stage_periods(
+    first_month: Any,
+    last_month: Any,
+    *,
+    bubble_point_date: Any = None,
+    stage2_end_date: Any = None,
+    gor_peak_date: Any = None,
+) -> list[tuple[int, pd.Timestamp, pd.Timestamp]]:
+    """Stage periods ``(stage, start, end)`` from the dates the stage tracker found.
+
+    Stage 1 runs to the bubble-point date, stage 2 to the end of the GOR dip, stage 3 to the
+    GOR peak, stage 4 to the last month. A missing date ends the sequence: the well is still
+    in the stage before it. Only drawing boundaries; the dates themselves come from
+    ``core.stages``.
+    """
+    if first_month is None or pd.isna(first_month) or last_month is None or pd.isna(last_month):
+        return []
+    bounds = [pd.Timestamp(first_month)]
+    for d in (bubble_point_date, stage2_end_date, gor_peak_date):
+        if d is None or pd.isna(d):
+            break
+        bounds.append(min(max(pd.Timestamp(d), bounds[-1]), pd.Timestamp(last_month)))
+    bounds.append(pd.Timestamp(last_month))
+    periods = []
+    for i in range(len(bounds) - 1):
+        if bounds[i + 1] > bounds[i] or i == len(bounds) - 2:
+            periods.append((i + 1, bounds[i], bounds[i + 1]))
+    return periods
+
+
+def gor_pressure_figure(
+    history: pd.DataFrame,
+    *,
+    periods: list[tuple[int, pd.Timestamp, pd.Timestamp]] = (),
+    rsi_scf_stb: float | None = None,
+    bubble_point_psia: float | None = None,
+    events: Mapping[str, Any] | None = None,
+    expected: pd.DataFrame | None = None,
+    title: str = "Producing GOR and pressure",
+) -> go.Figure:
+    """Producing GOR (left axis) and pressure (right axis) against time.
+
+    Parameters
+    ----------
+    history : DataFrame
+        ``month``, ``gor_scf_stb`` and ``pressure_psia`` (tidy monthly table). [scf/STB], [psia]
+    periods : list of (stage, start, end)
+        Stage periods to shade (see :func:`stage_periods`).
+    rsi_scf_stb, bubble_point_psia : float, optional
+        Initial solution GOR and bubble point, drawn as dashed reference lines.
+    events : mapping label -> month, optional
+        Detected dates (bubble point, end of the GOR dip, GOR peak) marked as vertical lines.
+    expected : DataFrame, optional
+        ``month`` with ``gor_scf_stb`` and/or ``pressure_psia`` from the material-balance
+        history match, drawn as lines beside the observed points.
+    """
+    has_gor = history is not None and "gor_scf_stb" in history and history["gor_scf_stb"].notna().any()
+    has_p = history is not None and "pressure_psia" in history and history["pressure_psia"].notna().any()
+    if not has_gor and not has_p:
+        return _empty(title, "No GOR or pressure data to draw")
+    fig = go.Figure()
+    for stage, start, end in periods:
+        fig.add_vrect(
+            x0=start, x1=end, fillcolor=PALETTE["stage"][stage],
+            opacity=PALETTE["stage_tint_opacity"], line_width=0, layer="below",
+            annotation_text=f"stage {stage}", annotation_position="top left",
+        )
+    if has_gor:
+        g = history.loc[history["gor_scf_stb"].notna()]
+        fig.add_trace(
+            go.Scatter(
+                x=g["month"], y=g["gor_scf_stb"], mode="lines+markers", name="producing GOR",
+                line=dict(color=PALETTE["gor"], width=1.5), marker=dict(size=4, symbol="circle"),
+            )
+        )
+    if has_p:
+        p = history.loc[history["pressure_psia"].notna()]
+        fig.add_trace(
+            go.Scatter(
+                x=p["month"], y=p["pressure_psia"], mode="markers", name="pressure survey",
+                marker=dict(color=PALETTE["pressure"], size=8, symbol="diamond"), yaxis="y2",
+            )
+        )
+    if expected is not None and not expected.empty:
+        if "gor_scf_stb" in expected:
+            fig.add_trace(
+                go.Scatter(
+                    x=expected["month"], y=expected["gor_scf_stb"], mode="lines",
+                    name="expected GOR (history match)",
+                    line=dict(color=PALETTE["gor"], width=2, dash="dot"),
+                )
+            )
+        if "pressure_psia" in expected:
+            fig.add_trace(
+                go.Scatter(
+                    x=expected["month"], y=expected["pressure_psia"], mode="lines",
+                    name="expected pressure (history match)",
+                    line=dict(color=PALETTE["pressure"], width=2, dash="dot"), yaxis="y2",
+                )
+            )
+    if rsi_scf_stb is not None and pd.notna(rsi_scf_stb):
+        fig.add_hline(
+            y=float(rsi_scf_stb), line=dict(color=PALETTE["gor"], dash="dash", width=1),
+            annotation_text=f"Rsi {rsi_scf_stb:.0f} scf/STB", annotation_position="bottom left",
+        )
+    if bubble_point_psia is not None and pd.notna(bubble_point_psia):
+        fig.add_hline(
+            y=float(bubble_point_psia), yref="y2",
+            line=dict(color=PALETTE["pressure"], dash="dash", width=1),
+            annotation_text=f"bubble point {bubble_point_psia:.0f} psia",
+            annotation_position="top right",
+        )
+    for label, when in (events or {}).items():
+        if when is None or pd.isna(when):
+            continue
+        # A shape plus a separate annotation: add_vline's own annotation cannot take dates.
+        fig.add_vline(x=pd.Timestamp(when), line=dict(color=PALETTE["event"], dash="dot", width=1))
+        fig.add_annotation(
+            x=pd.Timestamp(when), y=1.0, yref="paper", text=label, showarrow=False,
+            textangle=-90, xanchor="right", yanchor="top", font=dict(size=10),
+        )
+    fig.update_layout(
+        title=title,
+        yaxis=dict(title=dict(text="GOR [scf/STB]"), rangemode="tozero"),
+        yaxis2=dict(
+            title=dict(text="pressure [psia]"), overlaying="y", side="right",
+            rangemode="tozero", showgrid=False,
+        ),
+        **_LAYOUT,
+    )
+    fig.update_xaxes(title_text="month")
+    return fig
+
+
+_SHARE_COLUMNS = [
+    (1, "share_stage_1"),
+    (2, "share_stage_2"),
+    (3, "share_stage_3"),
+    (4, "share_stage_4"),
+    ("not_applicable", "share_not_applicable"),
+]
+
+
+def stage_share_figure(units: pd.DataFrame, *, title: str = "Wells by stage in each unit") -> go.Figure:
+    """Stacked horizontal bars: share of a unit's wells in each stage (from ``track_units``).
+
+    ``units`` has ``unit``, ``n_wells`` and ``share_stage_1`` .. ``share_stage_4``,
+    ``share_not_applicable`` (fractions 0-1).
+    """
+    if units is None or units.empty:
+        return _empty(title, "No reservoir units")
+    fig = go.Figure()
+    labels = [f"{u} ({n} wells)" for u, n in zip(units["unit"], units["n_wells"])]
+    for stage, column in _SHARE_COLUMNS:
+        if column not in units:
+            continue
+        name = STAGE_LABELS.get(stage, "not applicable (gas, condensate, unknown)")
+        fig.add_trace(
+            go.Bar(
+                y=labels, x=units[column], name=name, orientation="h",
+                marker=dict(color=PALETTE["stage"][stage], line=dict(color="#333333", width=0.5)),
+                hovertemplate="%{y}: %{x:.0%}<extra>" + name + "</extra>",
+            )
+        )
+    layout = dict(_LAYOUT, hovermode="closest")
+    fig.update_layout(title=title, barmode="stack", **layout)
+    fig.update_xaxes(title_text="share of wells", tickformat=".0%", range=[0, 1])
+    return fig
+
+
+def planning_status_figure(counts: pd.DataFrame, *, title: str = "Wells by planning status") -> go.Figure:
+    """Bar chart of well counts by planning status.
+
+    ``counts`` has ``planning_status`` and ``wells`` (counts made by ``core`` or ``state``).
+    """
+    if counts is None or counts.empty:
+        return _empty(title, "No planning statuses")
+    colours = [PALETTE["planning"].get(s, PALETTE["excluded"]) for s in counts["planning_status"]]
+    labels = [PLANNING_LABELS.get(s, str(s)) for s in counts["planning_status"]]
+    fig = go.Figure(
+        go.Bar(
+            x=labels, y=counts["wells"], marker=dict(color=colours, line=dict(color="#333333", width=0.5)),
+            text=counts["wells"], textposition="outside", name="wells",
+        )
+    )
+    layout = dict(_LAYOUT, hovermode="closest", showlegend=False)
+    fig.update_layout(title=title, **layout)
+    fig.update_yaxes(title_text="wells")
+    return fig
+
+
+def field_rate_figure(field: pd.DataFrame, *, title: str = "Field oil rate: history and forecast") -> go.Figure:
+    """Field oil rate, history and forecast, against time.
+
+    ``field`` has ``month``, ``kind`` (``actual`` or ``forecast``) and ``oil_rate_bopd``: the
+    field total per month, summed from the batch-run monthly table.
+    """
+    if field is None or field.empty:
+        return _empty(title, "No field totals")
+    fig = go.Figure()
+    for kind, colour, dash, name in (
+        ("actual", PALETTE["oil"], "solid", "field oil rate, actual"),
+        ("forecast", PALETTE["forecast"], "dot", "field oil rate, forecast"),
+    ):
+        part = field.loc[field["kind"] == kind]
+        if part.empty:
+            continue
+        fig.add_trace(
+            go.Scatter(
+                x=part["month"], y=part["oil_rate_bopd"], mode="lines", name=name,
+                line=dict(color=colour, width=2, dash=dash),
+            )
+        )
+    fig.update_layout(title=title, **_LAYOUT)
+    fig.update_yaxes(title_text="oil rate [bbl/d]", rangemode="tozero")
+    fig.update_xaxes(title_text="month")
+    return fig
