@@ -121,6 +121,16 @@ UNITS_COLUMNS = [
     "eur_gas_mcf",
 ]
 
+#: Further columns of ``units`` (after :data:`UNITS_COLUMNS`, in this order).
+UNITS_EXTRA_COLUMNS = [
+    "planning_rule",
+    "rsi_scf_stb",
+    "bubble_point_psia",
+    "stage2_end_date",
+    "latest_gor_scf_stb",
+    "stage_evidence",
+]
+
 #: ``status`` of a forecast well.
 STATUS_OK = "ok"
 
@@ -313,3 +323,511 @@ class RunResult:
     fluids: pd.DataFrame = field(default_factory=pd.DataFrame)
     inputs: dict[str, Any] = field(default_factory=dict)
     timings: dict[str, float] = field(default_factory=dict)
+
+
+# --------------------------------------------------------------------------------------------
+# helpers
+# --------------------------------------------------------------------------------------------
+def _noop_progress(fraction: float, message: str = "") -> None:
+    return None
+
+
+def _col(df: pd.DataFrame, *names: str, default: Any = np.nan) -> pd.Series:
+    """First column of ``df`` named in ``names``; else a column of ``default``."""
+    for n in names:
+        if n in df.columns:
+            return df[n]
+    return pd.Series(default, index=df.index, dtype=object if isinstance(default, str) else None)
+
+
+def _finite_or_nan(s: pd.Series) -> pd.Series:
+    v = pd.to_numeric(s, errors="coerce").to_numpy(dtype=float, na_value=np.nan)
+    return pd.Series(np.where(np.isfinite(v), v, np.nan), index=s.index)
+
+
+def _month_start(s: pd.Series) -> pd.Series:
+    v = pd.to_datetime(s, errors="coerce")
+    return v.dt.to_period("M").dt.to_timestamp().astype("datetime64[ns]")
+
+
+def economic_limit_bopd(settings: RunSettings, gor_scf_stb: Any = 0.0) -> np.ndarray:
+    """Economic-limit oil rate per well [bbl/d] from the run settings.
+
+    A rate given directly applies to every well. From prices and costs, the standard reserves
+    form of :func:`core.economics.economic_limit_rate` is used with the well's recent GOR to
+    credit gas revenue (common practice): q_EL = WI OPEX / (P_eff NRI (1 - tx)) per month,
+    P_eff = P_oil + GOR/1000 P_gas.
+    """
+    gor = np.nan_to_num(np.asarray(gor_scf_stb, dtype=float), nan=0.0, posinf=0.0, neginf=0.0)
+    gor = np.clip(gor, 0.0, None)
+    if settings.econ_limit_bopd is not None:
+        return np.full(gor.shape, float(settings.econ_limit_bopd))
+    if not settings.uses_economics:
+        return np.full(gor.shape, DEFAULT_ECON_LIMIT_BOPD)
+    from core.economics import economic_limit_rate
+
+    return np.broadcast_to(
+        economic_limit_rate(
+            oil_price_per_bbl=settings.oil_price,
+            opex_per_month=settings.opex_per_month,
+            working_interest=settings.wi,
+            net_revenue_interest=settings.nri,
+            severance_tax=settings.severance_tax,
+            gor_scf_stb=gor if settings.gas_price else 0.0,
+            gas_price_per_mcf=settings.gas_price or 0.0,
+        ),
+        gor.shape,
+    ).astype(float)
+
+
+def econ_limit_text(settings: RunSettings) -> str:
+    """One-line description of the economic limit the run used."""
+    if settings.econ_limit_bopd is not None:
+        return f"{settings.econ_limit_bopd:g} bbl/d (given)"
+    if settings.uses_economics:
+        gas = f", gas {settings.gas_price:g} $/Mcf credited at each well's recent GOR" if settings.gas_price else ""
+        return (
+            f"from oil {settings.oil_price:g} $/bbl{gas}, opex {settings.opex_per_month:g} $/month, "
+            f"NRI {settings.nri:g}, WI {settings.wi:g}, severance tax {settings.severance_tax:g}"
+        )
+    return f"{DEFAULT_ECON_LIMIT_BOPD:g} bbl/d (default)"
+
+
+def _actuals_per_well(prod: pd.DataFrame) -> pd.DataFrame:
+    """First/last month, cumulatives, recent rate and GOR per well (vectorised)."""
+    if prod.empty:
+        return pd.DataFrame(
+            columns=["well_id", "first_month", "last_month", "months_produced", "cum_oil_bbl", "cum_gas_mcf",
+                     "cum_water_bbl", "last_oil_rate_bopd", "recent_gor_scf_stb"]
+        )
+    g = prod.groupby("well_id", sort=False, observed=True)
+    out = pd.DataFrame(
+        {
+            "first_month": g["month"].min(),
+            "last_month": g["month"].max(),
+            "months_produced": (prod["oil_bbl"] > 0).groupby(prod["well_id"], sort=False, observed=True).sum(),
+            "cum_oil_bbl": g["cum_oil_bbl"].last(),
+            "cum_gas_mcf": g["cum_gas_mcf"].last() if "cum_gas_mcf" in prod else np.nan,
+            "cum_water_bbl": g["cum_water_bbl"].last() if "cum_water_bbl" in prod else np.nan,
+            "last_oil_rate_bopd": g["oil_rate_bbl_d"].last() if "oil_rate_bbl_d" in prod else np.nan,
+        }
+    )
+    # recent GOR: gas over oil in the last 6 months of each well (scf/STB)
+    tail = prod[["well_id", "oil_bbl", "gas_mcf"]].groupby("well_id", sort=False, observed=True).tail(6)
+    tg = tail.groupby("well_id", sort=False, observed=True)[["oil_bbl", "gas_mcf"]].sum(min_count=1)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        gor = 1000.0 * tg["gas_mcf"] / tg["oil_bbl"].where(tg["oil_bbl"] > 0)
+    out["recent_gor_scf_stb"] = gor.reindex(out.index)
+    out.index.name = "well_id"
+    return out.reset_index()
+
+
+def _status_text(s: Any) -> str:
+    if s is None or (isinstance(s, float) and math.isnan(s)) or s is pd.NA:
+        return ""
+    return " ".join(str(s).split())
+
+
+# --------------------------------------------------------------------------------------------
+# the run
+# --------------------------------------------------------------------------------------------
+def load_inputs(
+    production_path: str | Path,
+    *,
+    wells_path: str | Path | None = None,
+    settings: RunSettings,
+    sheet: str | None = None,
+) -> Any:
+    """Load a production file (and optional well-header file) with the run's input settings.
+
+    Returns the loader's ``LoadResult``. Raises :class:`InputError` when a file cannot be read.
+    """
+    from core.production import load_production
+
+    return load_production(
+        production_path,
+        wells_path=wells_path,
+        units=settings.units,
+        unit_column=settings.unit_column,
+        sheet=sheet,
+    )
+
+
+def run_from_files(
+    production_path: str | Path,
+    *,
+    wells_path: str | Path | None = None,
+    settings: RunSettings,
+    overrides: Mapping[str, Any] | None = None,
+    sheet: str | None = None,
+    progress: ProgressCallback | None = None,
+) -> RunResult:
+    """Load the files and run: :func:`load_inputs` then :func:`run_field` (used by the CLI)."""
+    load = load_inputs(production_path, wells_path=wells_path, settings=settings, sheet=sheet)
+    return run_field(load, settings=settings, overrides=overrides, progress=progress)
+
+
+def run_field(
+    load: Any,
+    *,
+    settings: RunSettings,
+    overrides: Mapping[str, Any] | None = None,
+    progress: ProgressCallback | None = None,
+) -> RunResult:
+    """Run the whole forecast on a loaded production file: the one run of the program.
+
+    Parameters
+    ----------
+    load : LoadResult
+        From :func:`core.production.load_production` (tidy monthly table, well header, load
+        report). Not modified.
+    settings : RunSettings
+        Economic limit, decline bounds, as-of month, horizon, workers.
+    overrides : mapping of str to WellOverride, optional
+        Engineer overrides per well id (fixed model, b, fit window, excluded months); each
+        applied override is named in the well's ``override`` column.
+    progress : callable, optional
+        ``progress(fraction, message)`` with ``fraction`` in [0, 1], called between phases.
+
+    Returns
+    -------
+    RunResult
+        Tables ``wells``, ``monthly``, ``units``, ``load_report``, ``candidates``, ``stages``
+        and the ``summary``; same inputs give the same numbers (the CLI and the dashboard both
+        call this function).
+
+    Raises
+    ------
+    InputError
+        When the production table holds no usable month up to the as-of month.
+    """
+    from core.decline import fit_field
+    from core.fluids import classify_field
+    from core.forecast import forecast_field
+    from core.stages import track_units, track_wells
+
+    prog = progress or _noop_progress
+    timings: dict[str, float] = {}
+    t0 = time.perf_counter()
+
+    prod_all: pd.DataFrame = load.production
+    header: pd.DataFrame = load.wells
+    report: pd.DataFrame = load.report.copy()
+    if prod_all.empty:
+        raise InputError("the production file has no usable rows (see the load report)")
+    last_month = pd.Timestamp(prod_all["month"].max())
+    as_of = settings.as_of if settings.as_of is not None else last_month
+    prod = prod_all[prod_all["month"] <= as_of] if settings.as_of is not None else prod_all
+    if prod.empty:
+        first = pd.Timestamp(prod_all["month"].min()).strftime("%Y-%m")
+        raise InputError(f"as_of {as_of:%Y-%m} is before the first month in the data ({first})")
+
+    prog(0.02, "typing fluids")
+    t = time.perf_counter()
+    fluids = classify_field(prod, header)
+    timings["fluids"] = time.perf_counter() - t
+
+    prog(0.10, "tracking depletion stages")
+    t = time.perf_counter()
+    stages = track_wells(prod, header, fluids, as_of=as_of)
+    timings["stages"] = time.perf_counter() - t
+
+    actual = _actuals_per_well(prod)
+    limits = pd.Series(
+        economic_limit_bopd(settings, actual["recent_gor_scf_stb"].to_numpy(dtype=float)),
+        index=actual["well_id"].to_numpy(),
+    )
+    dsettings = _decline_settings(settings, limits)
+
+    prog(0.25, "fitting Arps declines")
+    t = time.perf_counter()
+    regime = stages.set_index("well_id")["regime_start"] if "regime_start" in stages.columns else None
+    ff = fit_field(prod, regime_start=regime, settings=dsettings, overrides=dict(overrides) if overrides else None)
+    timings["fit"] = time.perf_counter() - t
+
+    prog(0.65, "forecasting to the economic limit")
+    t = time.perf_counter()
+    fsummary, fmonthly = forecast_field(ff.fits, prod, settings=dsettings, as_of=as_of)
+    timings["forecast"] = time.perf_counter() - t
+
+    prog(0.85, "summarising reservoir units")
+    t = time.perf_counter()
+    units_stage = track_units(prod, stages, header, as_of=as_of)
+    wells = _assemble_wells(prod, header, report, fluids, stages, ff.fits, fsummary, actual, limits, settings, overrides)
+    monthly = _assemble_monthly(prod, fmonthly, actual)
+    units = _assemble_units(units_stage, wells)
+    summary = _summary(wells, settings, as_of, load)
+    timings["assemble"] = time.perf_counter() - t
+    timings["run_total"] = time.perf_counter() - t0
+    prog(1.0, "run complete")
+
+    inputs = {
+        "file_name": getattr(load, "file_name", ""),
+        "content_sha256": getattr(load, "content_sha256", ""),
+        "rows_read": int(getattr(load, "rows_read", len(prod_all))),
+        "rows_used": int(getattr(load, "rows_used", len(prod_all))),
+        "rows_rejected": int(getattr(load, "rows_rejected", 0)),
+        "pressure_kind": getattr(load, "pressure_kind", ""),
+        "months_after_as_of_ignored": int(len(prod_all) - len(prod)),
+    }
+    return RunResult(
+        wells=wells,
+        monthly=monthly,
+        units=units,
+        load_report=report,
+        candidates=getattr(ff, "candidates", pd.DataFrame()),
+        stages=stages,
+        settings=settings,
+        version=__version__,
+        as_of=as_of,
+        summary=summary,
+        fits=ff.fits,
+        fluids=fluids,
+        inputs=inputs,
+        timings=timings,
+    )
+
+
+def _decline_settings(settings: RunSettings, limits: pd.Series) -> Any:
+    """The decline engine's settings from the run settings (economic limit per well)."""
+    from core.decline import DeclineSettings
+
+    kwargs = dict(
+        b_max=settings.b_max,
+        terminal_decline=settings.terminal_decline,
+        horizon_years=settings.horizon_years,
+        workers=settings.workers,
+        econ_limit_bopd=limits,
+    )
+    names = {f.name for f in dataclasses.fields(DeclineSettings)}
+    return DeclineSettings(**{k: v for k, v in kwargs.items() if k in names})
+
+
+def _stream_rows(fits: pd.DataFrame, stream: str) -> pd.DataFrame:
+    if "stream" in fits.columns:
+        fits = fits[fits["stream"].astype(str) == stream]
+    return fits.drop_duplicates("well_id", keep="first").set_index("well_id")
+
+
+def _assemble_wells(prod, header, report, fluids, stages, fits, fsummary, actual, limits, settings, overrides) -> pd.DataFrame:
+    # every well the user gave: header, production, and wells whose every row was rejected
+    ids = pd.Index(pd.unique(pd.concat([header["well_id"], prod["well_id"]], ignore_index=True).astype(str)))
+    rej_ids: pd.Index = pd.Index([])
+    if "well_id" in report.columns and len(report):
+        r = report.loc[report["well_id"].notna(), "well_id"].astype(str)
+        rej_ids = pd.Index(pd.unique(r)).difference(ids)
+    ids = ids.append(rej_ids)
+    w = pd.DataFrame(index=ids)
+    w.index.name = "well_id"
+
+    hdr = header.assign(well_id=header["well_id"].astype(str)).drop_duplicates("well_id").set_index("well_id")
+    act = actual.assign(well_id=actual["well_id"].astype(str)).set_index("well_id")
+    flu = fluids.assign(well_id=fluids["well_id"].astype(str)).drop_duplicates("well_id").set_index("well_id")
+    stg = stages.assign(well_id=stages["well_id"].astype(str)).drop_duplicates("well_id").set_index("well_id")
+    f_oil = _stream_rows(fits.assign(well_id=fits["well_id"].astype(str)), "oil")
+    f_gas = _stream_rows(fits.assign(well_id=fits["well_id"].astype(str)), "gas")
+    fs = fsummary.assign(well_id=fsummary["well_id"].astype(str))
+    fs_oil = _stream_rows(fs, "oil")
+    fs_gas = _stream_rows(fs, "gas")
+
+    unit_from_prod = prod.groupby("well_id", sort=False, observed=True)["unit"].last()
+    unit_from_prod.index = unit_from_prod.index.astype(str)
+    w["unit"] = _col(hdr, "unit").reindex(ids)
+    w["unit"] = w["unit"].where(w["unit"].notna(), unit_from_prod.reindex(ids)).fillna("unassigned")
+    w["fluid_type"] = _col(flu, "fluid_type", default="unknown").reindex(ids).fillna("unknown")
+
+    # status: the first reason found along the pipeline, "ok" when the well was forecast
+    fit_status = _col(f_oil, "status", default="").reindex(ids)
+    fc_status = _col(fs_oil, "status", default="").reindex(ids)
+    status = pd.Series(STATUS_OK, index=ids, dtype=object)
+    in_prod = ids.isin(act.index)
+    status[~in_prod] = "no production up to the as-of month"
+    status[ids.isin(rej_ids)] = "no usable rows (see load_report)"
+    fs_txt = fit_status.map(_status_text)
+    fc_txt = fc_status.map(_status_text)
+    no_fit = in_prod & ~ids.isin(f_oil.index)
+    status[no_fit] = "not fitted"
+    bad_fit = in_prod & ids.isin(f_oil.index) & (fs_txt != STATUS_OK) & (fs_txt != "")
+    status[bad_fit] = fs_txt[bad_fit]
+    bad_fc = in_prod & (status == STATUS_OK) & (fc_txt != STATUS_OK) & (fc_txt != "")
+    status[bad_fc] = fc_txt[bad_fc]
+
+    for c in ("first_month", "last_month", "cum_oil_bbl", "cum_gas_mcf", "cum_water_bbl"):
+        w[c] = act[c].reindex(ids) if c in act.columns else np.nan
+    ok = (status == STATUS_OK).to_numpy()
+
+    def fit_val(*names: str) -> pd.Series:
+        return _col(f_oil, *names).reindex(ids)
+
+    w["model"] = fit_val("model").where(ok)
+    w["fit_start"] = _month_start(fit_val("fit_start"))
+    w["fit_end"] = _month_start(fit_val("fit_end"))
+    w["qi_bopd"] = _finite_or_nan(fit_val("qi", "qi_bbl_d", "qi_bopd")).where(ok)
+    w["di_annual_nominal"] = _finite_or_nan(fit_val("di", "di_per_yr", "di_annual_nominal")).where(ok)
+    w["b"] = _finite_or_nan(fit_val("b")).where(ok)
+    w["terminal_decline_annual_effective"] = pd.Series(settings.terminal_decline, index=ids).where(ok)
+    w["econ_limit_bopd"] = limits.reindex(ids).astype(float)
+    w["remaining_oil_bbl"] = _finite_or_nan(_col(fs_oil, "remaining_oil_bbl", "remaining_bbl", "remaining").reindex(ids)).where(ok)
+    w["eur_oil_bbl"] = _finite_or_nan(_col(fs_oil, "eur_oil_bbl", "eur_bbl", "eur").reindex(ids)).where(ok)
+    w["econ_limit_date"] = _month_start(_col(fs_oil, "econ_limit_date", "econ_limit_month", "end_month").reindex(ids)).where(ok)
+    eur_gas = _col(fs_oil, "eur_gas_mcf").reindex(ids)
+    if eur_gas.isna().all():
+        eur_gas = _col(fs_gas, "eur_gas_mcf", "eur_mcf", "eur").reindex(ids)
+    w["eur_gas_mcf"] = _finite_or_nan(eur_gas)
+    for c in ("rsi_scf_stb", "bubble_point_psia"):
+        w[c] = _finite_or_nan(_col(stg, c).reindex(ids))
+    bp_hdr = _finite_or_nan(_col(hdr, "bubble_point_psia").reindex(ids))
+    w["bubble_point_psia"] = w["bubble_point_psia"].where(w["bubble_point_psia"].notna(), bp_hdr)
+    w["stage"] = pd.array(pd.to_numeric(_col(stg, "stage").reindex(ids), errors="coerce"), dtype="Int64")
+    w["stage_confidence"] = _col(stg, "stage_confidence", default="").reindex(ids).fillna("")
+    for c in ("bubble_point_date", "stage2_end_date", "gor_peak_date"):
+        w[c] = _month_start(_col(stg, c).reindex(ids))
+    w["gor_peak_scf_stb"] = _finite_or_nan(_col(stg, "gor_peak_scf_stb").reindex(ids))
+    w["passed_gor_peak"] = _col(stg, "passed_gor_peak", default=False).reindex(ids).fillna(False).astype(bool)
+    w["planning_status"] = _col(stg, "planning_status", default="not_applicable").reindex(ids).fillna("not_applicable")
+
+    # extras
+    w["months_produced"] = _col(act, "months_produced").reindex(ids)
+    w["last_oil_rate_bopd"] = _finite_or_nan(_col(act, "last_oil_rate_bopd").reindex(ids))
+    w["remaining_gas_mcf"] = _finite_or_nan(_col(fs_oil, "remaining_gas_mcf").reindex(ids))
+    w["fit_months_used"] = _col(f_oil, "months_used", "n_used").reindex(ids)
+    w["fit_months_excluded"] = _col(f_oil, "months_excluded", "n_excluded").reindex(ids)
+    w["fit_months_down_weighted"] = _col(f_oil, "months_down_weighted", "n_down_weighted").reindex(ids)
+    w["fit_rmse_log"] = _finite_or_nan(_col(f_oil, "rmse_log", "rmse").reindex(ids))
+    w["fit_criterion"] = _col(f_oil, "criterion", default="").reindex(ids)
+    w["gas_model"] = _col(f_gas, "model", default="").reindex(ids)
+    w["gas_qi_mcf_d"] = _finite_or_nan(_col(f_gas, "qi").reindex(ids))
+    w["gas_di_annual_nominal"] = _finite_or_nan(_col(f_gas, "di").reindex(ids))
+    w["gas_b"] = _finite_or_nan(_col(f_gas, "b").reindex(ids))
+    w["override"] = _col(f_oil, "override", default="").reindex(ids).fillna("")
+    w["initial_gor_scf_stb"] = _finite_or_nan(_col(flu, "initial_gor_scf_stb").reindex(ids))
+    w["fluid_evidence"] = _col(flu, "fluid_evidence", default="").reindex(ids).fillna("")
+    for c in ("stage_reason", "stage_evidence", "planning_rule"):
+        w[c] = _col(stg, c, default="").reindex(ids).fillna("")
+    w["months_since_event"] = _finite_or_nan(_col(stg, "months_since_event").reindex(ids))
+    w["months_to_gor_peak_est"] = _finite_or_nan(_col(stg, "months_to_gor_peak_est").reindex(ids))
+    w["regime_start"] = _month_start(_col(stg, "regime_start").reindex(ids))
+
+    # guard: a forecast well must carry finite EUR >= cumulative
+    bad = ok & ~(np.isfinite(w["eur_oil_bbl"].to_numpy(dtype=float)) & np.isfinite(w["remaining_oil_bbl"].to_numpy(dtype=float)))
+    status[bad] = "forecast not finite"
+    w["status"] = status.to_numpy()
+    out = w.reset_index()
+    return out[WELLS_COLUMNS + WELLS_EXTRA_COLUMNS]
+
+
+def _assemble_monthly(prod: pd.DataFrame, fmonthly: pd.DataFrame, actual: pd.DataFrame) -> pd.DataFrame:
+    """Actual months from the tidy table, then forecast months; sorted by well and month."""
+    n = len(prod)
+    act = pd.DataFrame(
+        {
+            "well_id": prod["well_id"].to_numpy(),
+            "month": prod["month"].to_numpy(),
+            "kind": np.full(n, "actual", dtype=object),
+            "oil_bbl": prod["oil_bbl"].to_numpy(dtype=float),
+            "gas_mcf": _col(prod, "gas_mcf").to_numpy(dtype=float),
+            "water_bbl": _col(prod, "water_bbl").to_numpy(dtype=float),
+            "oil_rate_bopd": _col(prod, "oil_rate_bbl_d").to_numpy(dtype=float),
+            "cum_oil_bbl": prod["cum_oil_bbl"].to_numpy(dtype=float),
+        }
+    )
+    fm = fmonthly
+    if "stream" in fm.columns:
+        fm = fm[fm["stream"].astype(str) == "oil"]
+    m = len(fm)
+    fc = pd.DataFrame(
+        {
+            "well_id": fm["well_id"].to_numpy(),
+            "month": _month_start(fm["month"]).to_numpy(),
+            "kind": np.full(m, "forecast", dtype=object),
+            "oil_bbl": _col(fm, "oil_bbl").to_numpy(dtype=float),
+            "gas_mcf": _col(fm, "gas_mcf").to_numpy(dtype=float),
+            "water_bbl": _col(fm, "water_bbl").to_numpy(dtype=float),
+            "oil_rate_bopd": _col(fm, "oil_rate_bopd", "oil_rate_bbl_d").to_numpy(dtype=float),
+            "cum_oil_bbl": _col(fm, "cum_oil_bbl").to_numpy(dtype=float),
+        }
+    )
+    if m and fc["cum_oil_bbl"].isna().all():
+        base = actual.set_index("well_id")["cum_oil_bbl"]
+        fc["cum_oil_bbl"] = fc["well_id"].map(base).to_numpy(dtype=float) + fc.groupby("well_id", sort=False)["oil_bbl"].cumsum().to_numpy()
+    out = pd.concat([act, fc], ignore_index=True)
+    for c in ("oil_bbl", "gas_mcf", "water_bbl", "oil_rate_bopd", "cum_oil_bbl"):
+        v = out[c].to_numpy(dtype=float)
+        out[c] = np.where(np.isfinite(v), v, np.nan)
+    out["kind"] = out["kind"].astype(str)
+    out = out.sort_values(["well_id", "month"], kind="stable", ignore_index=True)
+    return out[MONTHLY_COLUMNS]
+
+
+def _assemble_units(units_stage: pd.DataFrame, wells: pd.DataFrame) -> pd.DataFrame:
+    """Unit table: the stage tracker's unit view plus forecast totals from the wells table."""
+    w = wells.assign(unit=wells["unit"].astype(str))
+    ok = w["status"] == STATUS_OK
+    g = w.groupby("unit", sort=True)
+    totals = pd.DataFrame(
+        {
+            "n_wells_all": g.size(),
+            "n_wells_forecast": ok.groupby(w["unit"]).sum(),
+            "n_wells_past_gor_peak": w["passed_gor_peak"].astype(bool).groupby(w["unit"]).sum(),
+            "cum_oil_bbl": g["cum_oil_bbl"].sum(min_count=1),
+            "cum_gas_mcf": g["cum_gas_mcf"].sum(min_count=1),
+            "cum_water_bbl": g["cum_water_bbl"].sum(min_count=1),
+            "remaining_oil_bbl": w["remaining_oil_bbl"].where(ok).groupby(w["unit"]).sum(min_count=1),
+            "eur_oil_bbl": w["eur_oil_bbl"].where(ok).groupby(w["unit"]).sum(min_count=1),
+            "eur_gas_mcf": w["eur_gas_mcf"].where(ok).groupby(w["unit"]).sum(min_count=1),
+        }
+    )
+    us = units_stage.assign(unit=units_stage["unit"].astype(str)).drop_duplicates("unit").set_index("unit")
+    idx = us.index.union(totals.index)
+    u = pd.DataFrame(index=idx)
+    u.index.name = "unit"
+    u["stage"] = pd.array(pd.to_numeric(_col(us, "stage").reindex(idx), errors="coerce"), dtype="Int64")
+    u["stage_confidence"] = _col(us, "stage_confidence", default="").reindex(idx).fillna("")
+    n_stage = pd.to_numeric(_col(us, "n_wells").reindex(idx), errors="coerce")
+    u["n_wells"] = n_stage.where(n_stage.notna(), totals["n_wells_all"].reindex(idx)).fillna(0).astype(int)
+    for c in ("share_stage_1", "share_stage_2", "share_stage_3", "share_stage_4", "share_not_applicable"):
+        u[c] = _finite_or_nan(_col(us, c).reindex(idx))
+    u["planning_status"] = _col(us, "planning_status", default="not_applicable").reindex(idx).fillna("not_applicable")
+    u["bubble_point_date"] = _month_start(_col(us, "bubble_point_date").reindex(idx))
+    u["months_since_bubble_point"] = _finite_or_nan(_col(us, "months_since_bubble_point").reindex(idx))
+    u["gor_peak_date"] = _month_start(_col(us, "gor_peak_date").reindex(idx))
+    u["months_to_gor_peak_est"] = _finite_or_nan(_col(us, "months_to_gor_peak_est").reindex(idx))
+    for c in ("n_wells_forecast", "n_wells_past_gor_peak"):
+        u[c] = totals[c].reindex(idx).fillna(0).astype(int)
+    for c in ("cum_oil_bbl", "cum_gas_mcf", "cum_water_bbl", "remaining_oil_bbl", "eur_oil_bbl", "eur_gas_mcf"):
+        u[c] = _finite_or_nan(totals[c].reindex(idx))
+    u["planning_rule"] = _col(us, "planning_rule", default="").reindex(idx).fillna("")
+    u["rsi_scf_stb"] = _finite_or_nan(_col(us, "rsi_scf_stb").reindex(idx))
+    u["bubble_point_psia"] = _finite_or_nan(_col(us, "bubble_point_psia").reindex(idx))
+    u["stage2_end_date"] = _month_start(_col(us, "stage2_end_date").reindex(idx))
+    u["latest_gor_scf_stb"] = _finite_or_nan(_col(us, "gor_scf_stb", "latest_gor_scf_stb").reindex(idx))
+    u["stage_evidence"] = _col(us, "stage_evidence", default="").reindex(idx).fillna("")
+    return u.reset_index()[UNITS_COLUMNS + UNITS_EXTRA_COLUMNS]
+
+
+def _summary(wells: pd.DataFrame, settings: RunSettings, as_of: pd.Timestamp, load: Any) -> dict[str, Any]:
+    ok = wells["status"] == STATUS_OK
+    reasons = wells.loc[~ok, "status"].value_counts()
+    fluid_counts = wells["fluid_type"].value_counts()
+
+    def total(col: str, mask: pd.Series | None = None) -> float:
+        s = wells[col] if mask is None else wells.loc[mask, col]
+        v = float(np.nansum(s.to_numpy(dtype=float)))
+        return v if math.isfinite(v) else 0.0
+
+    return {
+        "as_of": as_of.strftime("%Y-%m"),
+        "wells_read": int(len(wells)),
+        "wells_forecast": int(ok.sum()),
+        "wells_not_forecast": int((~ok).sum()),
+        "not_forecast_reasons": {str(k): int(v) for k, v in reasons.items()},
+        "fluid_types": {str(k): int(v) for k, v in fluid_counts.items()},
+        "econ_limit": econ_limit_text(settings),
+        "cum_oil_bbl_total": total("cum_oil_bbl"),
+        "eur_oil_bbl_total": total("eur_oil_bbl", ok),
+        "remaining_oil_bbl_total": total("remaining_oil_bbl", ok),
+        "eur_gas_mcf_total": total("eur_gas_mcf", ok),
+        "wells_past_gor_peak": int(wells["passed_gor_peak"].astype(bool).sum()),
+        "rows_read": int(getattr(load, "rows_read", 0)),
+        "rows_rejected": int(getattr(load, "rows_rejected", 0)),
+    }

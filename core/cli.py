@@ -1,0 +1,346 @@
+"""The batch command: ``python -m core forecast INPUT [--wells FILE] --out DIR [options]``.
+
+Parses the options, calls :func:`core.run.run_from_files` (the same run the dashboard makes),
+writes the output tables with :mod:`core.export`, optionally records the run in the store,
+and prints a short summary on stdout. A progress bar goes to stderr when stderr is a terminal
+(or with ``--progress``).
+
+Exit codes: 0 success; 2 an input error (unreadable file, bad option, bad value), reported as
+one message on stderr; 1 an internal error (message only; ``--debug`` adds the traceback).
+"""
+
+from __future__ import annotations
+
+import argparse
+import textwrap
+import sys
+import time
+import traceback
+import warnings
+from collections import Counter
+from pathlib import Path
+from typing import Any, TextIO
+
+from core import __version__
+
+EXIT_OK = 0
+EXIT_INTERNAL = 1
+EXIT_INPUT = 2
+
+_DESCRIPTION = (
+    "Depletion Desk batch command. Reads monthly production per well, fits Arps declines, "
+    "forecasts each well to its economic limit, places each well and reservoir unit in the "
+    "four stages of solution-gas-drive depletion, and writes the tables (CSV and XLSX, field "
+    "units, months as YYYY-MM)."
+)
+
+_EPILOG = (
+    "Outputs in DIR: wells.csv (one row per well), forecast_monthly.csv (actual and forecast "
+    "months), units.csv (one row per reservoir unit), load_report.csv (rejected and altered "
+    "rows), forecast.xlsx (the same tables plus a cover sheet), and changes.csv when --db "
+    "already holds a run of the same field. Forecasts are estimates; reserves bookings and "
+    "field decisions follow local regulations and licensed professional practice. "
+    "Exit codes: 0 success, 2 input error, 1 internal error."
+)
+
+
+class UsageError(Exception):
+    """A command-line usage error (unknown option, bad number, missing argument)."""
+
+    def __init__(self, message: str, prog: str) -> None:
+        super().__init__(message)
+        self.prog = prog
+
+
+class _Parser(argparse.ArgumentParser):
+    """argparse that raises :class:`UsageError` instead of printing usage and exiting."""
+
+    def error(self, message: str):  # type: ignore[override]
+        raise UsageError(message, self.prog)
+
+
+def build_parser() -> argparse.ArgumentParser:
+    """The argument parser of ``python -m core`` (every option with its unit and default)."""
+    from core.run import DEFAULT_ECON_LIMIT_BOPD, DEFAULT_HORIZON_YEARS, DEFAULT_TERMINAL_DECLINE
+
+    parser = _Parser(
+        prog="python -m core",
+        description=_DESCRIPTION,
+        epilog="Run 'python -m core forecast --help' for the forecast command's options.",
+    )
+    parser.add_argument("--version", action="version", version=f"Depletion Desk {__version__}")
+    sub = parser.add_subparsers(dest="command", metavar="COMMAND")
+    f = sub.add_parser(
+        "forecast",
+        help="forecast every well of a production file to its economic limit and write the tables",
+        description=_DESCRIPTION,
+        epilog=_EPILOG,
+    )
+    f.add_argument("input", metavar="INPUT", help="production file: CSV (comma, semicolon or tab) or XLSX, one row per well and month")
+    f.add_argument("--wells", metavar="FILE", help="well-header file (one row per well: well_id, unit, api_gravity, gas_specific_gravity, reservoir_temp_f, initial_pressure_psia, bubble_point_psia; any may be blank). Default: none; such columns may also sit in INPUT")
+    f.add_argument("--out", metavar="DIR", required=True, help="output folder, created when missing (required)")
+    f.add_argument("--sheet", metavar="NAME", help="worksheet to read when INPUT is XLSX. Default: the first sheet")
+
+    e = f.add_argument_group("economic limit (give a rate, or prices and costs; default %g bbl/d)" % DEFAULT_ECON_LIMIT_BOPD)
+    e.add_argument("--econ-limit-bopd", type=float, metavar="RATE", help=f"economic limit as an oil rate [bbl/d]. Default {DEFAULT_ECON_LIMIT_BOPD:g} when no prices are given")
+    e.add_argument("--oil-price", type=float, metavar="USD", help="oil price [$/bbl]; with --opex-per-month and --nri it sets the economic limit. Default: none")
+    e.add_argument("--gas-price", type=float, metavar="USD", help="gas price [$/Mcf], credited at the well's recent GOR. Default: none (no gas credit)")
+    e.add_argument("--opex-per-month", type=float, metavar="USD", help="gross operating cost per well and month [$/month]. Default: none")
+    e.add_argument("--nri", type=float, metavar="FRAC", help="net revenue interest, fraction in (0, 1] [-]. Default: none")
+    e.add_argument("--wi", type=float, default=1.0, metavar="FRAC", help="working interest, fraction in (0, 1] [-]. Default 1")
+    e.add_argument("--severance-tax", type=float, default=0.0, metavar="FRAC", help="severance/production tax, fraction of revenue in [0, 1) [-]. Default 0")
+
+    d = f.add_argument_group("decline and forecast")
+    d.add_argument("--as-of", metavar="YYYY-MM", help="forecast as of this month; later production is ignored. Default: the last month in the data")
+    d.add_argument("--b-max", type=float, default=2.0, metavar="B", help="upper bound of the Arps b-factor, in (0, 2] [-]. Default 2")
+    d.add_argument("--terminal-decline", type=float, default=DEFAULT_TERMINAL_DECLINE, metavar="FRAC", help=f"terminal decline, effective annual fraction in (0, 1) [1/yr] (0.06 = 6 %%/yr). Default {DEFAULT_TERMINAL_DECLINE:g}")
+    d.add_argument("--horizon-years", type=float, default=DEFAULT_HORIZON_YEARS, metavar="YEARS", help=f"forecast horizon cap after the as-of month [yr]. Default {DEFAULT_HORIZON_YEARS:g}")
+    d.add_argument("--workers", type=int, metavar="N", help="worker processes for the fits. Default: chosen by the decline engine from the cores available")
+
+    i = f.add_argument_group("input interpretation")
+    i.add_argument("--units", choices=("field", "metric"), default="field", help="unit system of the input (outputs are always field units: bbl, Mcf, psia). Default field")
+    i.add_argument("--unit-column", metavar="NAME", help="input column holding the reservoir unit. Default: recognised from the header")
+
+    s = f.add_argument_group("store and output")
+    s.add_argument("--db", metavar="PATH_OR_URL", help="record the run in this store (SQLite file path or database URL); writes changes.csv when it already holds a run of the same field. Default: not recorded")
+    s.add_argument("--field-name", metavar="NAME", help="field name under which the run is recorded in --db. Default: the input file name without extension and trailing date")
+    s.add_argument("--no-xlsx", action="store_true", help="skip forecast.xlsx (CSV files only). Default: write it")
+    s.add_argument("--progress", action="store_true", help="show the progress bar on stderr even when stderr is not a terminal. Default: only on a terminal")
+    s.add_argument("--quiet", action="store_true", help="print nothing on stdout. Default: print a short summary")
+    s.add_argument("--debug", action="store_true", help="print the traceback of an internal error. Default: message only")
+    # `python -m core --help` documents every option too: append the command's own help.
+    parser.formatter_class = argparse.RawDescriptionHelpFormatter
+    parser.description = textwrap.fill(_DESCRIPTION, 88)
+    parser.epilog = "The forecast command and its options:\n\n" + f.format_help()
+    return parser
+
+
+# --------------------------------------------------------------------------------------------
+# progress bar
+# --------------------------------------------------------------------------------------------
+class ProgressBar:
+    """A one-line text progress bar (``[#####.....]  50%  message``) on a stream."""
+
+    def __init__(self, stream: TextIO, *, enabled: bool, width: int = 30) -> None:
+        self.stream = stream
+        self.enabled = enabled
+        self.width = width
+        self._last = -1.0
+        self._shown = False
+
+    def __call__(self, fraction: float, message: str = "") -> None:
+        if not self.enabled:
+            return
+        fraction = min(max(float(fraction), 0.0), 1.0)
+        now = time.monotonic()
+        if fraction < 1.0 and now - self._last < 0.1:
+            return
+        self._last = now
+        filled = int(round(fraction * self.width))
+        line = f"\r[{'#' * filled}{'.' * (self.width - filled)}] {100 * fraction:3.0f}%  {message[:60]:<60}"
+        self.stream.write(line)
+        self.stream.flush()
+        self._shown = True
+
+    def close(self) -> None:
+        if self.enabled and self._shown:
+            self.stream.write("\n")
+            self.stream.flush()
+            self._shown = False
+
+
+def _scaled(cb: ProgressBar, lo: float, hi: float):
+    return lambda fraction, message="": cb(lo + (hi - lo) * min(max(float(fraction), 0.0), 1.0), message)
+
+
+# --------------------------------------------------------------------------------------------
+# summary
+# --------------------------------------------------------------------------------------------
+def format_summary(result: Any, paths: dict[str, Path] | None = None, *, changes: Path | None = None) -> str:
+    """The short text summary the command prints on stdout."""
+    s = result.summary
+    as_of = "" if result.as_of is None else result.as_of.strftime("%Y-%m")
+    lines = [f"Depletion Desk {result.version}: forecast as of {as_of}"]
+    inputs = getattr(result, "inputs", {}) or {}
+    if "rows_read" in inputs:
+        lines.append(
+            f"rows read {inputs['rows_read']:,}, used {inputs.get('rows_used', 0):,}, "
+            f"rejected {inputs.get('rows_rejected', 0):,} (see load_report.csv)"
+        )
+    lines.append(f"wells read: {s.get('wells_read', 0):,}")
+    lines.append(f"wells forecast: {s.get('wells_forecast', 0):,}")
+    reasons = s.get("not_forecast_reasons", {}) or {}
+    lines.append(f"wells not forecast: {s.get('wells_not_forecast', 0):,}")
+    for reason, n in sorted(reasons.items(), key=lambda kv: (-kv[1], kv[0])):
+        lines.append(f"  {n:>6,}  {reason}")
+    lines.append(f"economic limit: {s.get('econ_limit', '')}")
+    lines.append(
+        f"total EUR oil: {_num(s.get('eur_oil_bbl_total'))} bbl "
+        f"(cumulative {_num(s.get('cum_oil_bbl_total'))}, remaining {_num(s.get('remaining_oil_bbl_total'))})"
+    )
+    lines.append(f"wells past the GOR peak: {s.get('wells_past_gor_peak', 0):,}")
+    if paths:
+        folder = Path(next(iter(paths.values()))).parent
+        lines.append(f"outputs in {folder}: {', '.join(paths)}")
+    if changes is not None:
+        lines.append(f"changes since the previous run: {changes}")
+    return "\n".join(lines)
+
+
+def _num(v: Any) -> str:
+    try:
+        return f"{float(v):,.0f}"
+    except (TypeError, ValueError):
+        return ""
+
+
+# --------------------------------------------------------------------------------------------
+# main
+# --------------------------------------------------------------------------------------------
+def _settings(args: argparse.Namespace):
+    from core.run import RunSettings
+
+    return RunSettings(
+        econ_limit_bopd=args.econ_limit_bopd,
+        oil_price=args.oil_price,
+        gas_price=args.gas_price,
+        opex_per_month=args.opex_per_month,
+        nri=args.nri,
+        wi=args.wi,
+        severance_tax=args.severance_tax,
+        as_of=args.as_of,
+        b_max=args.b_max,
+        terminal_decline=args.terminal_decline,
+        horizon_years=args.horizon_years,
+        workers=args.workers,
+        units=args.units,
+        unit_column=args.unit_column,
+    )
+
+
+def _err(stream: TextIO, message: str) -> None:
+    text = " ".join(str(message).split())  # one line
+    stream.write(f"error: {text}\n")
+    stream.flush()
+
+
+def main(argv: list[str] | None = None, *, stdout: TextIO | None = None, stderr: TextIO | None = None) -> int:
+    """Run the batch command; return the exit code (0 ok, 2 input error, 1 internal error)."""
+    out = stdout if stdout is not None else sys.stdout
+    err = stderr if stderr is not None else sys.stderr
+    parser = build_parser()
+    try:
+        args = parser.parse_args(argv)
+    except UsageError as exc:
+        _err(err, f"{exc} (see '{exc.prog} --help')")
+        return EXIT_INPUT
+    except SystemExit as exc:  # argparse: --help / --version print and exit 0
+        return EXIT_OK if exc.code in (0, None) else EXIT_INPUT
+    if args.command != "forecast":
+        _err(err, "give a command: 'python -m core forecast INPUT --out DIR' (see 'python -m core --help')")
+        return EXIT_INPUT
+    try:
+        return _forecast(args, out, err)
+    except KeyboardInterrupt:
+        _err(err, "interrupted")
+        return 130
+
+
+def _forecast(args: argparse.Namespace, out: TextIO, err: TextIO) -> int:
+    from core.validation import InputError
+
+    bar = ProgressBar(err, enabled=bool(args.progress or (hasattr(err, "isatty") and err.isatty())))
+    phase = "options"
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        try:
+            settings = _settings(args)
+            out_dir = Path(args.out)
+            if out_dir.exists() and not out_dir.is_dir():
+                raise InputError(f"--out {out_dir} exists and is not a folder")
+            for name, p in (("INPUT", args.input), ("--wells", args.wells)):
+                if p is not None and not Path(p).is_file():
+                    raise InputError(f"{name} file not found: {p}")
+            phase = "load"
+            from core.run import load_inputs, run_field
+
+            bar(0.0, "reading the production file")
+            load = load_inputs(args.input, wells_path=args.wells, settings=settings, sheet=args.sheet)
+            phase = "run"
+            result = run_field(load, settings=settings, progress=_scaled(bar, 0.05, 0.85))
+            phase = "export"
+            from core.export import write_outputs
+
+            paths = write_outputs(result, out_dir, xlsx=not args.no_xlsx, progress=_scaled(bar, 0.85, 0.97))
+            changes = None
+            if args.db:
+                phase = "store"
+                bar(0.97, "recording the run in the store")
+                changes = record_run(args.db, result, load, field_name=args.field_name, out_dir=out_dir)
+                if changes is not None:
+                    paths[changes.name] = changes
+            bar(1.0, "done")
+            bar.close()
+        except (InputError, ValueError, OSError) as exc:
+            bar.close()
+            if isinstance(exc, InputError) or phase in ("options", "load"):
+                _err(err, str(exc) or type(exc).__name__)
+                return EXIT_INPUT
+            if isinstance(exc, OSError) and phase in ("export", "store"):
+                _err(err, f"cannot write the outputs: {exc}")
+                return EXIT_INPUT
+            return _internal(err, exc, args.debug, phase)
+        except Exception as exc:  # noqa: BLE001 - the command must report, never crash
+            bar.close()
+            return _internal(err, exc, args.debug, phase)
+    if caught:
+        counts = Counter(f"{w.category.__name__}: {w.message}" for w in caught)
+        err.write(f"{sum(counts.values())} warning(s) during the run:\n")
+        for text, n in counts.most_common(5):
+            err.write(f"  {n} x {' '.join(text.split())[:200]}\n")
+    if not args.quiet:
+        out.write(format_summary(result, paths, changes=changes) + "\n")
+        out.flush()
+    return EXIT_OK
+
+
+def _internal(err: TextIO, exc: BaseException, debug: bool, phase: str) -> int:
+    _err(err, f"internal error during {phase}: {type(exc).__name__}: {exc}")
+    if debug:
+        traceback.print_exception(exc, file=err)
+    else:
+        err.write("(run again with --debug for the traceback)\n")
+    return EXIT_INTERNAL
+
+
+def record_run(db: str, result: Any, load: Any, *, field_name: str | None, out_dir: Path) -> Path | None:
+    """Record ``result`` (and its dataset) in the store at ``db``; write ``changes.csv`` in
+    ``out_dir`` when the store already held a run of the same field.
+
+    Returns the path of ``changes.csv`` or None. Store problems (locked, newer schema, not a
+    store) raise :class:`core.validation.InputError` with the store's message.
+    """
+    from core.validation import InputError
+
+    try:
+        from core.changes import compare_runs
+        from core.export import CHANGES_FILE, write_csv
+        from core.storage import StoreError, default_field_name, open_store
+    except ImportError as exc:  # pragma: no cover - a build without the store
+        raise InputError(f"--db: the store is not available in this build ({exc})") from exc
+    name = field_name or default_field_name(getattr(load, "file_name", "") or "field")
+    try:
+        store = open_store(db)
+        try:
+            previous = store.latest_run(name)
+            store.save_run(result, field=name, load=load, inputs=dict(result.inputs), as_of_month=result.as_of)
+        finally:
+            store.close()
+    except StoreError as exc:
+        raise InputError(f"--db {db}: {exc}") from exc
+    if previous is None:
+        return None
+    changes = compare_runs(previous.wells, result.wells)
+    path = Path(out_dir) / CHANGES_FILE
+    write_csv(changes, path)
+    return path

@@ -1,0 +1,162 @@
+"""The batch command: help texts, exit codes (0 ok, 2 input error, 1 internal error), summary.
+
+Exit-code convention: 0 success, 2 usage/input error (the convention of Python's argparse and
+of POSIX utilities, common practice), 1 any other failure.
+"""
+
+from __future__ import annotations
+
+import io
+import re
+
+import pandas as pd
+import pytest
+
+import core.run as run_mod
+from core.cli import EXIT_INPUT, EXIT_INTERNAL, EXIT_OK, ProgressBar, build_parser, main
+from core.validation import InputError
+
+FORECAST_OPTIONS = [
+    "--wells", "--out", "--sheet", "--econ-limit-bopd", "--oil-price", "--gas-price",
+    "--opex-per-month", "--nri", "--wi", "--severance-tax", "--as-of", "--b-max",
+    "--terminal-decline", "--horizon-years", "--workers", "--units", "--unit-column", "--db",
+    "--field-name", "--no-xlsx", "--progress", "--quiet", "--debug",
+]
+
+
+def _run(argv):
+    out, err = io.StringIO(), io.StringIO()
+    code = main(argv, stdout=out, stderr=err)
+    return code, out.getvalue(), err.getvalue()
+
+
+def _option_help(parser_help: str, option: str) -> str:
+    """The help paragraph of one option in argparse's output."""
+    m = re.search(rf"^\s+{re.escape(option)}\b.*?(?=^\s+--|\Z|^\S)", parser_help, re.S | re.M)
+    assert m, f"{option} not documented"
+    return " ".join(m.group(0).split())
+
+
+@pytest.mark.parametrize("argv", [["--help"], ["forecast", "--help"]])
+def test_help_documents_every_option_with_default(argv, capsys):
+    with pytest.raises(SystemExit) as exc:
+        build_parser().parse_args(argv)
+    assert exc.value.code == 0
+    text = capsys.readouterr().out
+    for opt in FORECAST_OPTIONS:
+        para = _option_help(text, opt)
+        assert "Default" in para or "required" in para, para
+    # units are named for the quantities that have one
+    for opt, unit in [("--econ-limit-bopd", "[bbl/d]"), ("--oil-price", "[$/bbl]"), ("--gas-price", "[$/Mcf]"),
+                      ("--opex-per-month", "[$/month]"), ("--terminal-decline", "[1/yr]"), ("--horizon-years", "[yr]")]:
+        assert unit in _option_help(text, opt)
+
+
+def test_main_help_returns_zero():
+    assert main(["--help"]) == EXIT_OK
+
+
+def test_no_command_is_a_usage_error():
+    code, _, err = _run([])
+    assert code == EXIT_INPUT and "forecast" in err
+
+
+@pytest.mark.parametrize(
+    "extra, words",
+    [
+        (["--b-max", "3"], "b_max"),
+        (["--terminal-decline", "6"], "terminal_decline"),
+        (["--econ-limit-bopd", "2", "--oil-price", "70"], "either"),
+        (["--oil-price", "70"], "missing: opex_per_month, nri"),
+        (["--nri", "1.5", "--oil-price", "70", "--opex-per-month", "3000"], "nri"),
+        (["--as-of", "last spring"], "as_of"),
+        (["--econ-limit-bopd", "-1"], "econ_limit_bopd"),
+        (["--workers", "0"], "workers"),
+    ],
+)
+def test_bad_option_values_exit_2_with_one_message(tmp_path, extra, words):
+    f = tmp_path / "p.csv"
+    f.write_text("well,month,oil\nA,2020-01,10\n")
+    code, out, err = _run(["forecast", str(f), "--out", str(tmp_path / "o"), *extra])
+    assert code == EXIT_INPUT
+    assert out == ""
+    lines = err.strip().splitlines()
+    assert len(lines) == 1 and lines[0].startswith("error: ") and words in lines[0]
+    assert "Traceback" not in err
+
+
+def test_argparse_errors_exit_2(tmp_path):
+    code, _, err = _run(["forecast", "x.csv", "--out", str(tmp_path), "--b-max", "abc"])
+    assert code == EXIT_INPUT and "invalid float" in err
+    code, _, _ = _run(["forecast", "x.csv"])  # --out missing
+    assert code == EXIT_INPUT
+
+
+def test_missing_input_file_exit_2(tmp_path):
+    code, _, err = _run(["forecast", str(tmp_path / "none.csv"), "--out", str(tmp_path / "o")])
+    assert code == EXIT_INPUT and "not found" in err and len(err.strip().splitlines()) == 1
+
+
+def test_out_is_a_file_exit_2(tmp_path):
+    f = tmp_path / "p.csv"
+    f.write_text("well,month,oil\nA,2020-01,10\n")
+    code, _, err = _run(["forecast", str(f), "--out", str(f)])
+    assert code == EXIT_INPUT and "not a folder" in err
+
+
+def test_loader_input_error_exit_2(tmp_path, monkeypatch):
+    f = tmp_path / "p.csv"
+    f.write_text("x")
+
+    def bad_load(*a, **k):
+        raise InputError(f"{f.name}: the file has no header row")
+
+    monkeypatch.setattr(run_mod, "load_inputs", bad_load)
+    code, out, err = _run(["forecast", str(f), "--out", str(tmp_path / "o")])
+    assert code == EXIT_INPUT and out == ""
+    assert err.strip() == f"error: {f.name}: the file has no header row"
+
+
+@pytest.mark.parametrize("debug", [False, True])
+def test_internal_error_exit_1(tmp_path, monkeypatch, debug):
+    f = tmp_path / "p.csv"
+    f.write_text("well,month,oil\nA,2020-01,10\n")
+    monkeypatch.setattr(run_mod, "load_inputs", lambda *a, **k: object())
+
+    def boom(*a, **k):
+        raise RuntimeError("a bug")
+
+    monkeypatch.setattr(run_mod, "run_field", boom)
+    argv = ["forecast", str(f), "--out", str(tmp_path / "o")] + (["--debug"] if debug else [])
+    code, out, err = _run(argv)
+    assert code == EXIT_INTERNAL and out == ""
+    assert "internal error" in err and "RuntimeError: a bug" in err
+    assert ("Traceback" in err) == debug
+
+
+def test_value_error_inside_the_run_is_internal(tmp_path, monkeypatch):
+    # a ValueError raised by computation (not by loading or options) is a bug, not bad input
+    f = tmp_path / "p.csv"
+    f.write_text("well,month,oil\nA,2020-01,10\n")
+    monkeypatch.setattr(run_mod, "load_inputs", lambda *a, **k: object())
+
+    def boom(*a, **k):
+        raise ValueError("shapes do not match")
+
+    monkeypatch.setattr(run_mod, "run_field", boom)
+    code, _, err = _run(["forecast", str(f), "--out", str(tmp_path / "o")])
+    assert code == EXIT_INTERNAL and "shapes do not match" in err
+
+
+def test_progress_bar_draws_only_when_enabled():
+    s = io.StringIO()
+    bar = ProgressBar(s, enabled=False)
+    bar(0.5, "half")
+    bar.close()
+    assert s.getvalue() == ""
+    bar = ProgressBar(s, enabled=True, width=10)
+    bar(0.5, "half")
+    bar(1.0, "done")
+    bar.close()
+    text = s.getvalue()
+    assert "[#####.....]  50%  half" in text and "[##########] 100%  done" in text and text.endswith("\n")
