@@ -1,0 +1,206 @@
+"""Benchmark of the batch command end to end: file -> load -> fluids -> stages -> fits ->
+forecast -> all output files.
+
+Generates a synthetic field of N wells (24-240 months each; Arps oil decline, a solution-gas
+GOR path with dip, rise and fall, water, days on, sparse pressure surveys) as a CSV file,
+then runs ``python -m core forecast`` in a fresh process (in-process ``core.cli.main`` there)
+and prints the wall time per phase and the peak resident memory (``ru_maxrss`` of that process
+and of its worker processes).
+
+    .venv/bin/python benchmarks/bench_run.py                 # 10,000 wells
+    .venv/bin/python benchmarks/bench_run.py --wells 100000  # the memory target
+    .venv/bin/python benchmarks/bench_run.py --large         # same as --wells 100000
+
+Targets (issue 6): 10,000 wells file-to-outputs under 30 s on the 2-core machine; 100,000
+wells within 2 GB. The figures depend on the machine's load: say so when you quote them.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import os
+import resource
+import subprocess
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+ROOT = Path(__file__).resolve().parents[1]
+
+
+def synthetic_field_csv(path: Path, n_wells: int, *, seed: int = 20261201) -> int:
+    """Write a synthetic production CSV of ``n_wells`` wells; return the number of rows.
+
+    Each well: 24-240 months ending 2026-10; oil from an Arps hyperbolic decline (qi 50-800
+    bbl/d, Di 0.2-1.5 /yr, b 0-1.2) with 5 % lognormal noise; GOR flat at Rsi (300-1200
+    scf/STB), dipping 10 % below it, rising to 2-4 Rsi and falling, at random points of the
+    life; water cut rising from 2 % to 40-90 %; days on 25-31 with 2 % shut-in months;
+    a pressure survey every 12 months falling from 3,000-4,500 psia.
+    """
+    rng = np.random.default_rng(seed)
+    n_months = rng.integers(24, 241, n_wells)
+    total = int(n_months.sum())
+    well_idx = np.repeat(np.arange(n_wells), n_months)
+    starts = np.cumsum(n_months) - n_months
+    k = np.arange(total) - np.repeat(starts, n_months)  # month index within the well
+    end = pd.Period("2026-10", "M").ordinal
+    first = end - n_months + 1
+    ordinal = np.repeat(first, n_months) + k
+    months = pd.PeriodIndex.from_ordinals(ordinal, freq="M").strftime("%Y-%m")
+
+    qi = rng.uniform(50, 800, n_wells)[well_idx]
+    di = rng.uniform(0.2, 1.5, n_wells)[well_idx]
+    b = rng.uniform(0.0, 1.2, n_wells)[well_idx]
+    t = k / 12.0
+    with np.errstate(divide="ignore", invalid="ignore"):
+        q = np.where(b > 1e-6, qi / np.power(1 + b * di * t, 1 / np.where(b > 1e-6, b, 1.0)), qi * np.exp(-di * t))
+    q *= rng.lognormal(0.0, 0.05, total)
+    days = rng.uniform(25, 31, total).round(0)
+    shut = rng.random(total) < 0.02
+    days[shut] = 0.0
+    oil = q * days
+
+    rsi = rng.uniform(300, 1200, n_wells)[well_idx]
+    frac = k / np.repeat(n_months, n_months)
+    pb_at = rng.uniform(0.0, 0.4, n_wells)[well_idx]
+    peak_at = pb_at + rng.uniform(0.2, 0.6, n_wells)[well_idx]
+    peak = rng.uniform(2.0, 4.0, n_wells)[well_idx]
+    gor = np.where(
+        frac < pb_at,
+        rsi,
+        np.where(
+            frac < peak_at,
+            rsi * (0.9 + (peak - 0.9) * np.clip((frac - pb_at) / np.maximum(peak_at - pb_at, 1e-9), 0, 1) ** 2),
+            rsi * peak * np.exp(-2.0 * (frac - peak_at)),
+        ),
+    )
+    gas = oil * gor / 1000.0 * rng.lognormal(0.0, 0.03, total)
+    wc_end = rng.uniform(0.4, 0.9, n_wells)[well_idx]
+    wc = 0.02 + (wc_end - 0.02) * frac
+    water = oil * wc / (1 - wc)
+    pi = rng.uniform(3000, 4500, n_wells)[well_idx]
+    p = pi * (1 - 0.6 * frac)
+    pressure = np.where(k % 12 == 0, p.round(0), np.nan)
+
+    ids = np.char.add("DD-", np.char.zfill(np.arange(1, n_wells + 1).astype(str), 6))
+    units = np.array(["Upper Kestrel", "Lower Kestrel", "Marrow Sand", "Tamsin Dolomite"])
+    df = pd.DataFrame(
+        {
+            "well_id": ids[well_idx],
+            "month": months,
+            "unit": units[np.arange(n_wells) % 4][well_idx],
+            "oil_bbl": oil.round(1),
+            "gas_mcf": gas.round(1),
+            "water_bbl": water.round(1),
+            "days_on": days,
+            "pressure_psia": pressure,
+        }
+    )
+    df.to_csv(path, index=False, chunksize=500_000)
+    return total
+
+
+def _child(input_csv: str, out_dir: str, workers: str | None) -> None:
+    """Run the command in this process, timing each phase; print one JSON line."""
+    sys.path.insert(0, str(ROOT))
+    import core.export as export_mod
+    import core.run as run_mod
+    from core.cli import main
+
+    timings: dict[str, float] = {}
+    holder: dict[str, object] = {}
+    orig_load, orig_run, orig_write = run_mod.load_inputs, run_mod.run_field, export_mod.write_outputs
+
+    def load(*a, **k):
+        t = time.perf_counter()
+        r = orig_load(*a, **k)
+        timings["load"] = time.perf_counter() - t
+        return r
+
+    def run(*a, **k):
+        r = orig_run(*a, **k)
+        holder["result"] = r
+        return r
+
+    def write(*a, **k):
+        t = time.perf_counter()
+        r = orig_write(*a, **k)
+        timings["export"] = time.perf_counter() - t
+        return r
+
+    run_mod.load_inputs, run_mod.run_field, export_mod.write_outputs = load, run, write
+    argv = ["forecast", input_csv, "--out", out_dir, "--quiet"]
+    if workers:
+        argv += ["--workers", workers]
+    t0 = time.perf_counter()
+    code = main(argv)
+    wall = time.perf_counter() - t0
+    res = holder.get("result")
+    if res is not None:
+        for k2, v in res.timings.items():
+            timings[k2] = v
+    ru_self = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024.0
+    ru_children = resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss / 1024.0
+    out = {
+        "exit_code": code,
+        "wall_s": wall,
+        "timings_s": timings,
+        "peak_rss_mib": ru_self,
+        "peak_rss_children_mib": ru_children,
+        "wells": None if res is None else int(len(res.wells)),
+        "wells_forecast": None if res is None else int(res.summary.get("wells_forecast", 0)),
+        "monthly_rows": None if res is None else int(len(res.monthly)),
+    }
+    print(json.dumps(out))
+
+
+def main() -> int:
+    ap = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
+    ap.add_argument("--wells", type=int, default=10_000, help="number of wells (default 10,000)")
+    ap.add_argument("--large", action="store_true", help="100,000 wells (the memory target)")
+    ap.add_argument("--workers", default=None, help="--workers passed to the command")
+    ap.add_argument("--keep", metavar="DIR", help="keep the input and outputs in DIR")
+    ap.add_argument("--child", nargs=2, metavar=("INPUT", "OUT"), help=argparse.SUPPRESS)
+    args = ap.parse_args()
+    if args.child:
+        _child(args.child[0], args.child[1], args.workers)
+        return 0
+    n = 100_000 if args.large else args.wells
+    work = Path(args.keep) if args.keep else Path(tempfile.mkdtemp(prefix="dd_bench_"))
+    work.mkdir(parents=True, exist_ok=True)
+    csv_path = work / f"field_{n}.csv"
+    t = time.perf_counter()
+    rows = synthetic_field_csv(csv_path, n)
+    gen = time.perf_counter() - t
+    print(f"generated {n:,} wells, {rows:,} rows, {csv_path.stat().st_size / 2**20:,.0f} MiB in {gen:.1f} s (not timed below)")
+    print(f"machine: {os.cpu_count()} logical cores, load average {os.getloadavg()[0]:.2f} (shared machine: figures vary with load)")
+    cmd = [sys.executable, str(Path(__file__).resolve()), "--child", str(csv_path), str(work / "out")]
+    if args.workers:
+        cmd += ["--workers", args.workers]
+    proc = subprocess.run(cmd, capture_output=True, text=True, cwd=ROOT)
+    lines = [ln for ln in proc.stdout.splitlines() if ln.startswith("{")]
+    if proc.returncode != 0 or not lines:
+        print(proc.stdout)
+        print(proc.stderr, file=sys.stderr)
+        return 1
+    r = json.loads(lines[-1])
+    print(f"exit code {r['exit_code']}; wells {r['wells']:,}, forecast {r['wells_forecast']:,}; monthly rows {r['monthly_rows']:,}")
+    for phase in ("load", "fluids", "stages", "fit", "forecast", "assemble", "export"):
+        if phase in r["timings_s"]:
+            print(f"  {phase:<10} {r['timings_s'][phase]:8.2f} s")
+    print(f"  {'total':<10} {r['wall_s']:8.2f} s  (file to all outputs, in-process CLI)")
+    print(f"peak memory: {r['peak_rss_mib']:,.0f} MiB (command process), {r['peak_rss_children_mib']:,.0f} MiB (largest worker process)")
+    if not args.keep:
+        import shutil
+
+        shutil.rmtree(work, ignore_errors=True)
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())
