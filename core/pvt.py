@@ -47,6 +47,7 @@ __all__ = [
     "z_factor_dranchuk_abou_kassem",
     "gas_fvf",
     "gas_viscosity_lee_gonzalez_eakin",
+    "z_factor",
     "black_oil_table",
     "BLACK_OIL_COLUMNS",
 ]
@@ -114,6 +115,9 @@ VB_CO_RANGE = {
     "gamma_g": (0.511, 1.351),
 }
 VB_MU_RANGE = {"p": (141.0, 9515.0), "mu": (0.117, 148.0)}
+# lowest oil compressibility in the Vasquez-Beggs data (3.6e-6 1/psi); used by
+# black_oil_table as a constant co when the correlation's numerator is not positive
+VB_CO_MIN = 3.6e-6
 
 # Beggs & Robinson (1975)
 BR_Z = (3.0324, -0.02023)  # Z = 3.0324 - 0.02023 API
@@ -268,8 +272,9 @@ def bubble_point_standing(rsb: ArrayLike, *, api: ArrayLike, gamma_g: ArrayLike,
     Pb = 18.2 [(Rs/gamma_g)^0.83 10^(-x) - 1.4], x = 0.0125 API - 0.00091 T, the
     equation form of Standing's chart given by Standing (1981) [2]_. Data range
     (Standing 1947 [1]_): Pb 130-7000 psia, T 100-258 degF, Rs 20-1425 scf/STB,
-    API 16.5-63.8, gamma_g 0.59-0.95. Very small Rs gives Pb <= 0 (outside the
-    data range); the value is returned with a warning.
+    API 16.5-63.8, gamma_g 0.59-0.95. A very small Rs (far below the data range)
+    makes the formula give Pb <= 0; such points are returned as NaN with an
+    :class:`~core.validation.OutOfRangeWarning`, never as a negative pressure.
 
     References
     ----------
@@ -283,6 +288,15 @@ def bubble_point_standing(rsb: ArrayLike, *, api: ArrayLike, gamma_g: ArrayLike,
     a, g, t = _check_api(api), _check_gamma_g(gamma_g), _check_t(t_f)
     _warn_standing(t_f=t, rs=rs, api=a, gamma_g=g)
     pb = _bubble_point_standing_raw(rs, a, g, t)
+    nonpos = pb <= 0.0
+    if np.any(nonpos):
+        warnings.warn(
+            "Standing (1947) gives no positive bubble point for rsb = "
+            f"{float(np.min(np.broadcast_to(rs, pb.shape)[nonpos])):g} scf/STB (too little gas); returned NaN",
+            OutOfRangeWarning,
+            stacklevel=2,
+        )
+        pb = np.where(nonpos, np.nan, pb)
     _warn_standing(p=pb)
     return _out(pb, rsb, api, gamma_g, t_f)
 
@@ -682,6 +696,12 @@ def oil_fvf_undersaturated(
     r = _check_rs("rsb", rsb)
     a, g, t = _check_api(api), _check_gamma_g(gamma_gs, "gamma_gs"), _check_t(t_f)
     _warn_vb(VB_CO_RANGE, "Vasquez-Beggs (1980) compressibility", p=pe, rs=r, t_f=t, api=a, gamma_g=g)
+    if np.any(_co_numerator_vb(r, a, g, t) <= 0):
+        warnings.warn(
+            "Vasquez-Beggs (1980) compressibility is not positive for these inputs: Bo rises with pressure",
+            OutOfRangeWarning,
+            stacklevel=2,
+        )
     bo = _bo_undersat_vb_raw(pe, pbb, b, r, a, g, t)
     return _out(bo, p, pb, bob, rsb, api, gamma_gs, t_f)
 
@@ -1283,7 +1303,10 @@ def black_oil_table(
     Vasquez-Beggs compressibility integrated exactly
     (:func:`oil_fvf_undersaturated`), mu_o by
     :func:`undersaturated_oil_viscosity_vasquez_beggs`. Every column is
-    continuous at pb. Gas: z by ``z_method`` with ``pc_method`` criticals, Bg by
+    continuous at pb. Where the Vasquez-Beggs compressibility numerator is not
+    positive (light, gas-poor, cold oils outside its data) a constant
+    co = 3.6e-6 1/psi (the low end of its data) is used, with a warning, so Bo
+    never rises with pressure above pb. Gas: z by ``z_method`` with ``pc_method`` criticals, Bg by
     :func:`gas_fvf`, mu_g by :func:`gas_viscosity_lee_gonzalez_eakin`.
 
     Range warnings are given once per call for the fluid description (API, gas
@@ -1360,7 +1383,18 @@ def black_oil_table(
     bob = float(bo_f(rsb))
     bo_sat = bo_f(rs)
     pu = np.maximum(p, pb)
-    bo_und = _bo_undersat_vb_raw(pu, pb, bob, rsb, a, g, t)
+    co_num = float(_co_numerator_vb(rsb, a, g, t))
+    if co_num > 0.0:
+        bo_und = _bo_undersat_vb_raw(pu, pb, bob, rsb, a, g, t)
+    else:
+        if np.any(~sat):
+            warnings.warn(
+                f"Vasquez-Beggs (1980) compressibility is not positive for this oil (numerator {co_num:g}); "
+                f"using a constant co = {VB_CO_MIN:g} 1/psi above pb",
+                OutOfRangeWarning,
+                stacklevel=2,
+            )
+        bo_und = bob * np.exp(VB_CO_MIN * (pb - pu))
     bo = np.where(sat, bo_sat, bo_und)
 
     mu_od = float(_mu_od_br_raw(a, t))

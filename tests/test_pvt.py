@@ -602,3 +602,60 @@ def test_range_warnings_for_each_family():
         pvt.z_factor_dranchuk_abou_kassem(3.5, 2.0)
     with pytest.warns(OutOfRangeWarning, match="compressibility"):
         pvt.oil_compressibility_vasquez_beggs(12000.0, rsb=500.0, api=35.0, gamma_gs=0.8, t_f=180.0)
+
+
+# --------------------------------------------------------------------------------------
+# hardening: degenerate fluids
+# --------------------------------------------------------------------------------------
+def test_bubble_point_standing_too_little_gas_is_nan_with_warning():
+    # Standing's Pb equation is negative for Rs -> 0 (closed form: 18.2 * (0 - 1.4) < 0);
+    # the function never returns a negative pressure
+    with warnings.catch_warnings(record=True) as rec:
+        warnings.simplefilter("always")
+        pb = pvt.bubble_point_standing([1.0, 500.0], api=35.0, gamma_g=0.8, t_f=180.0)
+    msgs = [str(w.message) for w in rec if issubclass(w.category, OutOfRangeWarning)]
+    assert any("no positive bubble point" in m for m in msgs)
+    assert any(m.startswith("rs outside the range of Standing") for m in msgs)  # Rs 1 < 20
+    assert np.isnan(pb[0]) and pb[1] > 0
+
+
+def test_black_oil_table_floors_negative_vb_compressibility():
+    # Vasquez-Beggs co numerator for Rsb 25, T 80, gamma 0.7, API 30 is
+    # -1433 + 125 + 1376 - 826 + 378.3 = -379.7 (hand calculation): not physical, so the
+    # table uses co = 3.6e-6 1/psi (low end of the VB data) and warns
+    with pytest.warns(OutOfRangeWarning, match="numerator -379.7"):
+        tab = pvt.black_oil_table([1000.0, 2000.0, 3000.0], api=30.0, gamma_g=0.7, t_f=80.0,
+                                  rsb_scf_stb=25.0, method="vasquez_beggs")
+    pb, bob = tab.attrs["pb_psia"], tab.attrs["bob_bbl_stb"]
+    assert pb < 1000.0
+    assert_allclose(tab.bo_bbl_stb, bob * np.exp(3.6e-6 * (pb - tab.p_psia)), rtol=1e-12)
+    with pytest.warns(OutOfRangeWarning, match="not positive"):
+        pvt.oil_fvf_undersaturated(3000.0, pb=1000.0, bob=1.02, rsb=25.0, api=30.0, gamma_gs=0.7, t_f=80.0)
+
+
+@settings(max_examples=30, deadline=None, derandomize=True)
+@given(
+    api=st.floats(16.0, 58.0),
+    g=st.floats(0.6, 1.1),
+    t=st.floats(100.0, 250.0),
+    pb=st.floats(500.0, 5000.0),
+    method=st.sampled_from(["standing", "vasquez_beggs"]),
+    z_method=st.sampled_from(["dak", "hall_yarborough"]),
+)
+def test_black_oil_table_sane_over_the_data_range(api, g, t, pb, method, z_method):
+    # Physical sanity (common practice) for any fluid inside the correlations' data:
+    # finite; Rs, Bo rise and mu_o falls with p below pb; Bo falls above pb; Bg falls.
+    p = np.linspace(14.7, 6000.0, 120)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", OutOfRangeWarning)
+        tab = pvt.black_oil_table(p, api=api, gamma_g=g, t_f=t, pb_psia=pb, method=method, z_method=z_method)
+    assert np.isfinite(tab.to_numpy()).all()
+    below, above = tab[tab.p_psia <= pb], tab[tab.p_psia >= pb]
+    assert np.all(np.diff(below.rs_scf_stb) > 0)
+    assert np.all(np.diff(below.bo_bbl_stb) > 0)
+    assert np.all(np.diff(below.mu_o_cp) < 0)
+    assert np.all(np.diff(above.bo_bbl_stb) <= 0)
+    assert np.all(np.diff(above.mu_o_cp) >= 0)
+    assert np.all(np.diff(tab.bg_bbl_scf) < 0)
+    assert (tab.z > 0.25).all() and (tab.z < 1.3).all()
+    assert (tab.bo_bbl_stb > 1.0).all()
