@@ -315,7 +315,8 @@ def initial_gor(production: pd.DataFrame, *, n_months: int = INITIAL_GOR_MONTHS)
     the median taken. Early months are used because above the bubble point the
     producing GOR equals the initial solution GOR; the median resists a single
     allocation or test-month spike. Months with both oil and gas zero
-    (shut in) and months with gas unknown are skipped.
+    (shut in) and months with the oil or gas volume unknown (NaN or negative)
+    are skipped.
     """
     check_range("n_months", n_months, 1, None)
     cols = ["well_id", "initial_gor_scf_stb", "gor_months_used", "gor_first_month",
@@ -329,14 +330,15 @@ def initial_gor(production: pd.DataFrame, *, n_months: int = INITIAL_GOR_MONTHS)
     df = df.sort_values(["well_id", "month"], kind="stable")
     oil = df["oil_bbl"].to_numpy(float)
     gas = df["gas_mcf"].to_numpy(float)
-    oil = np.where(np.isfinite(oil) & (oil > 0), oil, 0.0)
-    gas_known = np.isfinite(gas)
+    oil_known = np.isfinite(oil) & (oil >= 0)  # a missing or negative oil volume is unknown
+    oil = np.where(oil_known, oil, 0.0)
+    gas_known = np.isfinite(gas) & (gas >= 0)
     gpos = gas_known & (gas > 0)
     producing = (oil > 0) | gpos
     with np.errstate(divide="ignore", invalid="ignore"):
         gor = np.where(oil > 0, 1000.0 * np.where(gas_known, gas, np.nan) / np.where(oil > 0, oil, 1.0), np.inf)
     df["_gor"] = gor
-    df["_use"] = producing & gas_known
+    df["_use"] = producing & gas_known & oil_known
     df["_prod"] = producing
     df["_oilm"] = oil > 0
     df["_gask"] = gas_known

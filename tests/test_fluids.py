@@ -270,3 +270,11 @@ def test_classify_field_header_with_other_id_dtype_and_duplicates():
     wells = pd.DataFrame({"well_id": [101, 101], "api_gravity": [15.0, 40.0]})
     out = classify_field(prod, wells)
     assert out.fluid_type.iloc[0] == "heavy_oil"  # GOR 600, API 15 (DOE heavy)
+
+
+def test_initial_gor_skips_months_with_unknown_oil():
+    # a month with gas but oil missing is not read as "gas with no oil" (no infinite GOR)
+    prod = _well("BX-1", [np.nan, 500, 500, 500], [900, 300, 300, 300])
+    g = initial_gor(prod)
+    assert g.initial_gor_scf_stb.iloc[0] == pytest.approx(600.0)  # 1000 * 300 / 500
+    assert g.gor_months_used.iloc[0] == 3
