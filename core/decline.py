@@ -24,10 +24,18 @@ References
 
 from __future__ import annotations
 
+import multiprocessing
+import os
+from collections.abc import Mapping
+from concurrent.futures import ProcessPoolExecutor
+from dataclasses import dataclass, field
+
 import numpy as np
+import pandas as pd
 from numpy.typing import ArrayLike
 
-from core.validation import check_range
+from core.economics import EconomicInputs
+from core.validation import InputError, check_range
 
 DAYS_PER_YEAR = 365.25  # d/yr, DEVELOPERS.md convention (Julian year)
 DAYS_PER_MONTH = DAYS_PER_YEAR / 12.0  # 30.4375 d, mean calendar month
@@ -333,3 +341,1109 @@ def nominal_from_secant_effective(de: ArrayLike, b: ArrayLike) -> np.ndarray:
     de_a = check_range("de", de, 0.0, 1.0, hi_open=True)
     b_a = check_range("b", b, 0.0, 2.0 + 1e-12)
     return _expm1_over(b_a, -np.log1p(-de_a))
+
+
+# ======================================================================================
+# fitting engine
+# ======================================================================================
+# Parameters of every Arps candidate: theta = (ln qi, ln di, b); residuals are on log rate:
+#   r = ln q_obs - (ln qi - log(1 + b di t)/b)
+# Fitting on log rate makes a 10 % miss at 5 bbl/d count as much as at 500 bbl/d.
+_LN_DI_MIN = np.log(1e-6)  # di >= 1e-6 1/yr (positive, "no decline" is flagged separately)
+_LN_DI_MAX = np.log(1e3)  # di <= 1000 1/yr (a 99.9 % drop within the first ~3 days)
+_LN_QI_SPAN = 50.0  # ln qi kept within +-50 of the data (guards against overflow only)
+_SSE_FLOOR_RMS = 1e-6  # log-rate RMS below which two candidates are considered exact ties
+
+LOSSES = ("linear", "soft_l1", "huber")
+CRITERIA = ("aicc", "aic", "bic", "sse")
+_N_PARAMS = {"exponential": 2, "harmonic": 2, "hyperbolic": 3}
+
+
+def _rho(z: np.ndarray, loss: str) -> tuple[np.ndarray, np.ndarray]:
+    """Robust loss rho(z) and rho'(z) of z = (r/s)^2 (scipy.optimize.least_squares convention)."""
+    if loss == "linear":
+        return z, np.ones_like(z)
+    if loss == "soft_l1":
+        s = z + 1.0
+        np.sqrt(s, out=s)
+        d = np.reciprocal(s)
+        s -= 1.0
+        s *= 2.0
+        return s, d
+    # huber
+    big = z > 1.0
+    sz = np.sqrt(np.where(big, z, 1.0))
+    return np.where(big, 2.0 * sz - 1.0, z), np.where(big, 1.0 / sz, 1.0)
+
+
+_B_EFF_MIN = 1e-100  # log1p(1e-100 x)/1e-100 == x to rounding: b = 0 needs no branch
+
+
+def _resid(theta: np.ndarray, t: np.ndarray, y: np.ndarray, exp_only: bool = False) -> np.ndarray:
+    """Log-rate residuals r = y - ln qi + log(1 + b di t)/b of padded wells (n, m)."""
+    di = np.exp(theta[:, 1:2])
+    if exp_only:
+        return (y - theta[:, 0:1]) + di * t
+    b = np.maximum(theta[:, 2:3], _B_EFF_MIN)
+    x = t * (b * di)
+    np.log1p(x, out=x)
+    x /= b
+    x += y
+    x -= theta[:, 0:1]
+    return x
+
+
+def _resid_jac(theta: np.ndarray, t: np.ndarray, y: np.ndarray, need_b: bool, exp_only: bool):
+    """Residuals and their exact derivatives w.r.t. (ln qi, ln di, b); d/d ln qi = -1."""
+    di = np.exp(theta[:, 1:2])
+    if exp_only:
+        x = t * di
+        return (y - theta[:, 0:1]) + x, x, None
+    b = np.maximum(theta[:, 2:3], _B_EFF_MIN)
+    x = t * di
+    bx = x * b
+    lg = np.log1p(bx)
+    r = lg / b
+    r += y
+    r -= theta[:, 0:1]
+    inv = 1.0 / (1.0 + bx)
+    j_u = x * inv  # d r / d ln di
+    if not need_b:
+        return r, j_u, None
+    # d r / d b = (b x/(1 + b x) - log(1 + b x))/b^2 ; series -x^2/2 + 2 b x^3/3 - 3 b^2 x^4/4
+    j_b = bx * inv
+    j_b -= lg
+    j_b /= b * b
+    small = theta[:, 2] < 1e-4
+    if small.any():
+        xs, bs = x[small], b[small]
+        bxs = xs * bs
+        j_b[small] = xs * xs * (-0.5 + bxs * (2.0 / 3.0) - bxs * bxs * 0.75)
+    return r, j_u, j_b
+
+
+def _lm_batch(t, y, w0, theta0, free, *, b_max, loss, scale, max_iter, tol):
+    """Batched projected Levenberg-Marquardt with IRLS robust weights.
+
+    All arrays are padded per well: ``t``, ``y``, ``w0`` of shape (n, m) with ``w0 = 0`` on
+    padding; ``theta0`` (n, 3) start values of (ln qi, ln di, b); ``free`` (n, 3) bool,
+    False holds a parameter fixed (b = 0 for the exponential family, 1 for the harmonic).
+    Minimises, per well, 0.5 s^2 sum w0 rho((r/s)^2) with r the log-rate residual, with
+    exact analytic derivatives, per-well damping and bounds by projection; wells leave the
+    batch as they converge.
+    Returns theta, robust cost, final IRLS weights (n, m), residuals, iterations, converged.
+    """
+    n, m = t.shape
+    theta = theta0.astype(float).copy()
+    lo = np.array([-np.inf, _LN_DI_MIN, 0.0])
+    hi = np.array([np.inf, _LN_DI_MAX, b_max])
+    s2 = scale * scale
+    exp_only = bool(np.all(~free[:, 2]) and np.all(theta[:, 2] == 0.0))
+    need_b = bool(free[:, 2].any())
+    lam = np.full(n, 1e-3)
+    converged = np.zeros(n, dtype=bool)
+    n_iter = np.zeros(n, dtype=int)
+    idx = np.arange(n)  # rows still iterating (original indices)
+    tt, yy, ww = t, y, w0
+    th = theta
+    fr = free.astype(float)
+
+    def robust_cost(r, w):
+        if loss == "linear":
+            return 0.5 * np.einsum("ij,ij,ij->i", w, r, r)
+        rho, _ = _rho((r * r) / s2, loss)
+        return 0.5 * s2 * np.einsum("ij,ij->i", w, rho)
+
+    cost = robust_cost(_resid(th, tt, yy, exp_only), ww)
+    for it in range(max_iter):
+        if idx.size == 0:
+            break
+        r, j_u, j_b = _resid_jac(th, tt, yy, need_b, exp_only)
+        if loss == "linear":
+            w = ww
+        else:
+            w = ww * _rho((r * r) / s2, loss)[1]
+        k = idx.size
+        A = np.zeros((k, 3, 3))
+        g = np.zeros((k, 3))
+        wj_u = w * j_u
+        A[:, 0, 0] = w.sum(1)
+        A[:, 0, 1] = A[:, 1, 0] = -wj_u.sum(1)
+        A[:, 1, 1] = np.einsum("ij,ij->i", wj_u, j_u)
+        g[:, 0] = np.einsum("ij,ij->i", w, r)  # -J^T W r with d r/d ln qi = -1
+        g[:, 1] = -np.einsum("ij,ij->i", wj_u, r)
+        if j_b is not None:
+            wj_b = w * j_b
+            A[:, 0, 2] = A[:, 2, 0] = -wj_b.sum(1)
+            A[:, 1, 2] = A[:, 2, 1] = np.einsum("ij,ij->i", wj_u, j_b)
+            A[:, 2, 2] = np.einsum("ij,ij->i", wj_b, j_b)
+            g[:, 2] = -np.einsum("ij,ij->i", wj_b, r)
+        # hold fixed parameters, and parameters at a bound whose descent direction points out
+        # of the box (active set), for this step: zero rows/columns, unit diagonal
+        f = fr[idx].copy()
+        at_lo = (th[:, 1:] <= lo[1:]) & (g[:, 1:] < 0.0)
+        at_hi = (th[:, 1:] >= hi[1:]) & (g[:, 1:] > 0.0)
+        f[:, 1:][at_lo | at_hi] = 0.0
+        A *= f[:, :, None] * f[:, None, :]
+        g *= f
+        diag = np.einsum("nii->ni", A).copy()
+        dg = np.where(f > 0, np.maximum(diag, 1e-12 * (1.0 + diag.max(axis=1, keepdims=True))), 1.0)
+        c0 = cost[idx]
+        lam_i = lam[idx]
+        th_new = th.copy()
+        c_new = c0.copy()
+        accepted = np.zeros(k, dtype=bool)
+        pend = np.arange(k)  # rows (local) still looking for an acceptable step
+        for _try in range(4):
+            M = A[pend]
+            M[:, [0, 1, 2], [0, 1, 2]] = np.where(f[pend] > 0, diag[pend] + lam_i[pend, None] * dg[pend], 1.0)
+            try:
+                delta = np.linalg.solve(M, g[pend][:, :, None])[:, :, 0]
+            except np.linalg.LinAlgError:  # a singular system in the batch: pseudo-inverse
+                delta = (np.linalg.pinv(M) @ g[pend][:, :, None])[:, :, 0]
+            delta = np.where(np.isfinite(delta), delta, 0.0) * f[pend]
+            thp = th[pend]
+            cand = np.clip(thp + delta, lo, hi)
+            cand[:, 0] = np.clip(cand[:, 0], thp[:, 0] - _LN_QI_SPAN, thp[:, 0] + _LN_QI_SPAN)
+            if pend.size == k:
+                cc = robust_cost(_resid(cand, tt, yy, exp_only), ww)
+            else:
+                cc = robust_cost(_resid(cand, tt[pend], yy[pend], exp_only), ww[pend])
+            ok = np.isfinite(cc) & (cc <= c0[pend])
+            okr = pend[ok]
+            th_new[okr] = cand[ok]
+            c_new[okr] = cc[ok]
+            accepted[okr] = True
+            lam_i[okr] *= 0.2
+            bad = pend[~ok]
+            lam_i[bad] *= 8.0
+            pend = bad
+            if pend.size == 0:
+                break
+        step = np.max(np.abs(th_new - th), axis=1)
+        step_small = step <= 1e-10 * (1.0 + np.max(np.abs(th), axis=1))
+        rel = (c0 - c_new) <= tol * (c0 + 1e-300)
+        done = (accepted & (rel | step_small)) | (lam_i > 1e12) | (c_new <= 1e-28)
+        th = th_new
+        lam[idx] = np.maximum(lam_i, 1e-12)
+        cost[idx] = c_new
+        theta[idx] = th
+        n_iter[idx] = it + 1
+        converged[idx[done]] = True
+        keep = ~done
+        if not keep.all():
+            idx = idx[keep]
+            th = th[keep]
+            tt, yy, ww = tt[keep], yy[keep], ww[keep]
+    # final residuals and IRLS weights for every well
+    r = _resid(theta, t, y, exp_only)
+    drho = _rho((r * r) / s2, loss)[1]
+    cost = robust_cost(r, w0)
+    return theta, cost, drho, r, n_iter, converged
+
+
+def _loglinear_start(t, y, w0):
+    """Weighted log-linear regression ln q = a - d t per well: the exponential start."""
+    sw = np.maximum(w0.sum(1), 1e-300)
+    tm = (w0 * t).sum(1) / sw
+    ym = (w0 * y).sum(1) / sw
+    dt = t - tm[:, None]
+    stt = (w0 * dt * dt).sum(1)
+    sty = (w0 * dt * (y - ym[:, None])).sum(1)
+    slope = np.where(stt > 0, sty / np.where(stt > 0, stt, 1.0), 0.0)
+    d = np.clip(-slope, 1e-4, 1e2)
+    a = ym + d * tm
+    return a, np.log(d)
+
+
+def _fit_families(t, y, w0, *, b_max, loss, scale, max_iter, tol, fixed_b=None):
+    """Fit the exponential, harmonic and hyperbolic families to padded wells at once.
+
+    ``fixed_b`` (n,) holds b for the hyperbolic candidate where it is fixed (NaN = free).
+    Returns a dict family -> dict of arrays (theta, cost, sse, wsse, weights, resid,
+    n_iter, converged).
+    """
+    n = t.shape[0]
+    kw = dict(b_max=b_max, loss=loss, scale=scale, max_iter=max_iter, tol=tol)
+    a0, u0 = _loglinear_start(t, y, w0)
+    out = {}
+    # exponential (b held at 0) and harmonic (b held at 1), each one batch
+    for fam, b_fix in (("exponential", 0.0), ("harmonic", 1.0)):
+        th0 = np.column_stack([a0, u0, np.full(n, b_fix)])
+        free = np.ones((n, 3), dtype=bool)
+        free[:, 2] = False
+        res = _lm_batch(t, y, w0, th0, free, **{**kw, "b_max": max(b_max, 1.0)})
+        out[fam] = _pack(res, slice(None), w0, y)
+    # hyperbolic: three starts (from the exponential, from the harmonic, high b), best kept
+    fb = np.full(n, np.nan) if fixed_b is None else np.asarray(fixed_b, dtype=float)
+    is_fixed = np.isfinite(fb)
+    th_e, th_h = out["exponential"]["theta"], out["harmonic"]["theta"]
+    b_hi = min(0.9 * b_max, 1.8)
+    starts = [
+        np.column_stack([th_e[:, 0], th_e[:, 1], np.full(n, min(0.4, b_max))]),
+        np.column_stack([th_h[:, 0], th_h[:, 1], np.full(n, min(1.0, b_max))]),
+        np.column_stack([th_h[:, 0], th_h[:, 1] + np.log(3.0), np.full(n, b_hi)]),
+    ]
+    for s in starts:
+        s[is_fixed, 2] = fb[is_fixed]
+    th0 = np.concatenate(starts)
+    free = np.ones((3 * n, 3), dtype=bool)
+    free[:, 2] = ~np.tile(is_fixed, 3)
+    T3, Y3, W3 = np.concatenate([t, t, t]), np.concatenate([y, y, y]), np.concatenate([w0, w0, w0])
+    res_h = _lm_batch(T3, Y3, W3, th0, free, **kw)
+    costs = res_h[1].reshape(3, n)
+    costs = np.where(np.isfinite(costs), costs, np.inf)
+    best = np.argmin(costs, axis=0)
+    rows = best * n + np.arange(n)
+    out["hyperbolic"] = _pack(res_h, rows, w0, y)
+    return out
+
+
+def _pack(res, rows, w0, y):
+    theta, cost, drho, r, n_iter, conv = res
+    r_ = r[rows]
+    w = drho[rows]
+    return {
+        "theta": theta[rows],
+        "cost": cost[rows],
+        "sse": np.einsum("ij,ij->i", w0, r_ * r_),
+        "wsse": np.einsum("ij,ij->i", w0 * w, r_ * r_),
+        "weights": w,
+        "resid": r_,
+        "n_iter": n_iter[rows],
+        "converged": conv[rows],
+    }
+
+
+def _criterion(wsse, n_used, k, criterion):
+    """Model-choice criterion on (robust-weighted) log-rate residuals; lower is better.
+
+    AICc = n ln(SSE/n) + 2k + 2k(k+1)/(n-k-1) (Hurvich & Tsai 1989); AIC without the last
+    term; BIC = n ln(SSE/n) + k ln n. SSE is floored at n (1e-6)^2 so exact fits tie and the
+    family with fewer parameters wins.
+    """
+    n = np.asarray(n_used, dtype=float)
+    sse = np.maximum(wsse, n * _SSE_FLOOR_RMS**2)
+    base = n * np.log(sse / np.maximum(n, 1.0))
+    if criterion == "sse":
+        return sse
+    if criterion == "bic":
+        return base + k * np.log(np.maximum(n, 1.0))
+    aic = base + 2.0 * k
+    if criterion == "aic":
+        return aic
+    denom = n - k - 1.0
+    return np.where(denom > 0, aic + 2.0 * k * (k + 1.0) / np.where(denom > 0, denom, 1.0), aic + 1e6)
+
+
+# ======================================================================================
+# public fitting API
+# ======================================================================================
+@dataclass(frozen=True)
+class DeclineSettings:
+    """Settings of the decline engine and forecast (field units).
+
+    Parameters
+    ----------
+    b_max : float
+        Upper bound of the Arps b-factor, (0, 2]. Default 2. [-]
+    terminal_decline_effective : float
+        Terminal (limiting) decline, annual tangent-effective, (0, 1). Default 0.06
+        (common practice, about 6 %/yr). [-] Applied in the forecast to every fit with b > 0
+        (modified hyperbolic, see :mod:`core.forecast`).
+    econ_limit_bopd : float or None
+        Economic limit as an oil rate per calendar day. [bbl/d] None: from ``economics`` if
+        given, else no rate limit (the horizon caps the forecast).
+    econ_limit_mcfd : float or None
+        Economic limit of a well forecast on gas only (no oil forecast). [Mcf/d]
+    economics : EconomicInputs or None
+        Price and cost inputs for :func:`core.economics.economic_limit_rate`; the gas credit
+        uses each well's GOR over its last 12 producing months.
+    horizon_years : float
+        Forecast cap after the last actual month. Default 50. [yr]
+    min_uptime_fraction : float
+        Months with days_on / days_in_month below this are left out of the fit. Default 0.5.
+    min_months : int
+        Fewest months in the fit window for a fit. Default 6 (3 parameters need margin).
+    loss : {"soft_l1", "huber", "linear"}
+        Loss on log-rate residuals. Default "soft_l1".
+    loss_scale : float
+        Residual scale of the robust loss in log-rate units; 0.2 is a ~20 % miss. [-]
+    downweight_below : float
+        A month whose final robust weight falls below this is reported as down-weighted.
+    criterion : {"aicc", "aic", "bic", "sse"}
+        Model choice between the three families on the log-rate residuals. Default "aicc".
+    detect_step_changes : bool
+        Detect a sustained step up in rate (workover, re-completion) as a regime start.
+    step_up_ratio : float
+        Median rate over the next ``step_window_months`` over the median of the previous
+        ones that counts as a step change. Default 1.5 (common practice). [-]
+    step_window_months : int
+        Window of the step test. Default 3.
+    min_decline_nominal : float
+        An exponential fit declining slower than this is "no decline". Default 0.005. [1/yr]
+    uptime_months : int
+        Producing months whose uptime sets the forecast's calendar-day factor. Default 12.
+    streams : tuple of str
+        Streams fitted: "oil" and/or "gas". Default both.
+    workers : int or None
+        Worker processes for the fit (None: up to the CPU count for large fields; 1: in
+        process).
+    max_iter : int
+        Levenberg-Marquardt iteration cap per well. Default 100.
+    tol : float
+        Relative cost change at convergence. Default 1e-8 (as scipy's least_squares ftol).
+    chunk_wells : int
+        Wells per batch (memory per batch ~ chunk x months x 100 bytes). Default 4096.
+    """
+
+    b_max: float = 2.0
+    terminal_decline_effective: float = 0.06
+    econ_limit_bopd: float | None = None
+    econ_limit_mcfd: float | None = None
+    economics: EconomicInputs | None = None
+    horizon_years: float = 50.0
+    min_uptime_fraction: float = 0.5
+    min_months: int = 6
+    loss: str = "soft_l1"
+    loss_scale: float = 0.2
+    downweight_below: float = 0.5
+    criterion: str = "aicc"
+    detect_step_changes: bool = True
+    step_up_ratio: float = 1.5
+    step_window_months: int = 3
+    min_decline_nominal: float = 0.005
+    uptime_months: int = 12
+    streams: tuple[str, ...] = ("oil", "gas")
+    workers: int | None = None
+    max_iter: int = 100
+    tol: float = 1e-8
+    chunk_wells: int = 4096
+
+    def __post_init__(self) -> None:
+        check_range("b_max", self.b_max, 0.0, 2.0, lo_open=True)
+        check_range("terminal_decline_effective", self.terminal_decline_effective, 0.0, 1.0,
+                    unit="(annual effective)", lo_open=True, hi_open=True)
+        if self.econ_limit_bopd is not None:
+            check_range("econ_limit_bopd", self.econ_limit_bopd, 0.0, None, unit="bbl/d")
+        if self.econ_limit_mcfd is not None:
+            check_range("econ_limit_mcfd", self.econ_limit_mcfd, 0.0, None, unit="Mcf/d")
+        check_range("horizon_years", self.horizon_years, 0.0, 200.0, unit="yr", lo_open=True)
+        check_range("min_uptime_fraction", self.min_uptime_fraction, 0.0, 1.0)
+        check_range("min_months", self.min_months, 4, None)
+        check_range("loss_scale", self.loss_scale, 0.0, None, lo_open=True)
+        check_range("step_up_ratio", self.step_up_ratio, 1.0, None, lo_open=True)
+        check_range("step_window_months", self.step_window_months, 1, 24)
+        check_range("uptime_months", self.uptime_months, 1, 120)
+        check_range("max_iter", self.max_iter, 1, 10000)
+        check_range("chunk_wells", self.chunk_wells, 1, None)
+        if self.loss not in LOSSES:
+            raise ValueError(f"loss must be one of {LOSSES}, got {self.loss!r}")
+        if self.criterion not in CRITERIA:
+            raise ValueError(f"criterion must be one of {CRITERIA}, got {self.criterion!r}")
+        bad = [s for s in self.streams if s not in ("oil", "gas")]
+        if bad or not self.streams:
+            raise ValueError(f"streams must be a non-empty tuple of 'oil'/'gas', got {self.streams!r}")
+        if self.workers is not None:
+            check_range("workers", self.workers, 1, 512)
+
+    @property
+    def d_lim_nominal(self) -> float:
+        """Terminal decline as a nominal decline. [1/yr]"""
+        return float(-np.log1p(-self.terminal_decline_effective))
+
+
+@dataclass(frozen=True)
+class WellOverride:
+    """An engineer's override of one well's fit (an input, always recorded in the output).
+
+    model : "exponential", "harmonic" or "hyperbolic" to force the family, or None.
+    b : a fixed b-factor in [0, b_max] (implies the hyperbolic family; 0 and 1 are the
+        exponential and harmonic), or None.
+    fit_start, fit_end : first / last month of the fit window (anything pandas reads as a
+        date; the month containing it), or None for the automatic window.
+    exclude_months : months left out of the fit.
+    reason, author : free text, reported.
+    """
+
+    model: str | None = None
+    b: float | None = None
+    fit_start: object = None
+    fit_end: object = None
+    exclude_months: tuple = ()
+    reason: str = ""
+    author: str = ""
+
+    def __post_init__(self) -> None:
+        if self.model is not None and self.model not in MODEL_NAMES:
+            raise InputError(f"override model must be one of {MODEL_NAMES}, got {self.model!r}")
+        if self.b is not None:
+            try:
+                check_range("override b", self.b, 0.0, 2.0)
+            except ValueError as exc:
+                raise InputError(str(exc)) from exc
+        for name in ("fit_start", "fit_end"):
+            v = getattr(self, name)
+            if v is not None:
+                object.__setattr__(self, name, _month_start(v, name))
+        object.__setattr__(self, "exclude_months",
+                           tuple(_month_start(m, "exclude_months") for m in self.exclude_months))
+        if self.fit_start is not None and self.fit_end is not None and self.fit_end < self.fit_start:
+            raise InputError(f"override fit_end {self.fit_end:%Y-%m} is before fit_start {self.fit_start:%Y-%m}")
+
+    def describe(self) -> str:
+        """One-line text naming everything this override changes."""
+        parts = []
+        if self.model:
+            parts.append(f"model={self.model}")
+        if self.b is not None:
+            parts.append(f"b={self.b:g}")
+        if self.fit_start is not None:
+            parts.append(f"fit_start={self.fit_start:%Y-%m}")
+        if self.fit_end is not None:
+            parts.append(f"fit_end={self.fit_end:%Y-%m}")
+        if self.exclude_months:
+            parts.append("exclude=" + ",".join(f"{m:%Y-%m}" for m in self.exclude_months))
+        txt = "; ".join(parts) or "no change"
+        if self.reason:
+            txt += f" (reason: {self.reason})"
+        if self.author:
+            txt += f" [by {self.author}]"
+        return txt
+
+
+def _month_start(v, name: str) -> pd.Timestamp:
+    try:
+        ts = pd.Timestamp(v)
+    except (ValueError, TypeError) as exc:
+        raise InputError(f"{name} must be a month like 2024-06, got {v!r}") from exc
+    if pd.isna(ts):
+        raise InputError(f"{name} must be a month like 2024-06, got {v!r}")
+    return pd.Timestamp(year=ts.year, month=ts.month, day=1)
+
+
+@dataclass(frozen=True)
+class ArpsFit:
+    """Result of :func:`fit_arps` for one rate series.
+
+    model : chosen family ("exponential", "harmonic", "hyperbolic"), "" when not fitted.
+    qi [rate unit], di [1/yr nominal], b [-]: parameters of the chosen family (NaN when
+    not fitted). sse_log: sum of squared log-rate residuals over the months used;
+    rmse_log; robust_cost; criterion and criterion_value; n_used; down_weighted (indices
+    into the input whose robust weight fell below the threshold); excluded (indices left
+    out: non-positive, non-finite or zero weight); candidates (family -> dict of qi, di, b,
+    sse_log, criterion_value, converged); status ("ok" or why not).
+    """
+
+    model: str
+    qi: float
+    di: float
+    b: float
+    sse_log: float
+    rmse_log: float
+    robust_cost: float
+    criterion: str
+    criterion_value: float
+    n_used: int
+    down_weighted: tuple[int, ...]
+    excluded: tuple[int, ...]
+    candidates: Mapping[str, Mapping[str, float]] = field(default_factory=dict)
+    status: str = "ok"
+    converged: bool = True
+
+
+def _resolve_workers(workers, n_wells, settings_chunk):
+    if workers is None:
+        workers = min(os.cpu_count() or 1, 8) if n_wells >= 4000 else 1
+    return max(1, int(workers))
+
+
+def _choose(fams: dict, n_used: np.ndarray, criterion: str, forced: np.ndarray | None,
+            fixed_b: np.ndarray):
+    """Criterion per family (n, 3) and the index of the chosen family per well."""
+    k_h = np.where(np.isfinite(fixed_b), 2.0, 3.0)
+    crit = np.column_stack([
+        _criterion(fams["exponential"]["wsse"], n_used, 2.0, criterion),
+        _criterion(fams["harmonic"]["wsse"], n_used, 2.0, criterion),
+        _criterion(fams["hyperbolic"]["wsse"], n_used, k_h, criterion),
+    ])
+    crit = np.where(np.isfinite(crit), crit, np.inf)
+    choice = np.argmin(crit, axis=0 if crit.ndim == 1 else 1)
+    if forced is not None:
+        choice = np.where(forced >= 0, forced, choice)
+    return crit, choice
+
+
+def _fit_chunk(args):
+    """Worker: fit the three families for one padded chunk (top level so it pickles)."""
+    t, y, w0, fixed_b, kw = args
+    fams = _fit_families(t, y, w0, fixed_b=fixed_b, **kw)
+    keep = ("theta", "cost", "sse", "wsse", "weights", "n_iter", "converged")
+    return {f: {k: v[k] for k in keep} for f, v in fams.items()}
+
+
+def _run_chunks(chunks, kw, workers):
+    jobs = [(c["t"], c["y"], c["w"], c["fixed_b"], kw) for c in chunks]
+    if workers <= 1 or len(jobs) <= 1:
+        return [_fit_chunk(j) for j in jobs]
+    methods = multiprocessing.get_all_start_methods()
+    ctx = multiprocessing.get_context("fork" if "fork" in methods else None)
+    with ProcessPoolExecutor(max_workers=min(workers, len(jobs)), mp_context=ctx) as ex:
+        return list(ex.map(_fit_chunk, jobs))
+
+
+def fit_arps(
+    t_yr: ArrayLike,
+    q: ArrayLike,
+    *,
+    b_max: float = 2.0,
+    model: str | None = None,
+    fixed_b: float | None = None,
+    weights: ArrayLike | None = None,
+    loss: str = "soft_l1",
+    loss_scale: float = 0.2,
+    criterion: str = "aicc",
+    downweight_below: float = 0.5,
+    min_points: int = 4,
+    max_iter: int = 100,
+    tol: float = 1e-8,
+) -> ArpsFit:
+    """Fit the Arps families to one rate series and choose one.
+
+    Parameters
+    ----------
+    t_yr : array_like
+        Time of each rate since the start of the decline segment (t = 0 is where ``qi``
+        applies; a month's average rate is best placed at mid-month). [yr]
+    q : array_like
+        Rates. [bbl/d] or [Mcf/d] Non-positive or non-finite values are left out (reported
+        in ``excluded``), never fitted as zeros.
+    b_max : float
+        Upper bound of b, (0, 2]. [-]
+    model : {"exponential", "harmonic", "hyperbolic"}, optional
+        Force the family (override); all three are still fitted and reported.
+    fixed_b : float, optional
+        Hold b at this value for the hyperbolic candidate (implies ``model="hyperbolic"``).
+    weights : array_like, optional
+        Non-negative weight per point (0 leaves it out).
+    loss, loss_scale : robust loss on log-rate residuals and its scale. [-]
+    criterion : {"aicc", "aic", "bic", "sse"}
+        Model-choice criterion on the robust-weighted log-rate residuals.
+
+    Returns
+    -------
+    ArpsFit
+
+    Notes
+    -----
+    Arps (1945) rate q = qi (1 + b di t)^(-1/b) fitted on ln q by a Levenberg-Marquardt
+    solver with exact derivatives and bounds 0 <= b <= b_max, di > 0, qi > 0; robust loss
+    as scipy.optimize.least_squares defines it; the exponential (b = 0), harmonic (b = 1)
+    and hyperbolic (free b) families are all fitted and compared by ``criterion``.
+    """
+    t_a = np.asarray(t_yr, dtype=float).ravel()
+    q_a = np.asarray(q, dtype=float).ravel()
+    if t_a.shape != q_a.shape:
+        raise ValueError(f"t_yr and q must have the same length, got {t_a.size} and {q_a.size}")
+    check_range("b_max", b_max, 0.0, 2.0, lo_open=True)
+    if model is not None and model not in MODEL_NAMES:
+        raise ValueError(f"model must be one of {MODEL_NAMES}, got {model!r}")
+    if fixed_b is not None:
+        check_range("fixed_b", fixed_b, 0.0, b_max)
+    if loss not in LOSSES:
+        raise ValueError(f"loss must be one of {LOSSES}, got {loss!r}")
+    if criterion not in CRITERIA:
+        raise ValueError(f"criterion must be one of {CRITERIA}, got {criterion!r}")
+    w_in = np.ones_like(q_a) if weights is None else np.asarray(weights, dtype=float).ravel()
+    if w_in.shape != q_a.shape:
+        raise ValueError("weights must have the length of q")
+    good = np.isfinite(t_a) & np.isfinite(q_a) & (q_a > 0) & np.isfinite(w_in) & (w_in > 0) & (t_a >= 0)
+    excluded = tuple(int(i) for i in np.flatnonzero(~good))
+    n_used = int(good.sum())
+    nan = float("nan")
+    if n_used < min_points:
+        return ArpsFit("", nan, nan, nan, nan, nan, nan, criterion, nan, n_used, (), excluded,
+                       {}, f"not fitted: {n_used} usable rates, at least {min_points} needed")
+    t2 = t_a[good][None, :]
+    y2 = np.log(q_a[good])[None, :]
+    w2 = w_in[good][None, :]
+    fb = np.array([np.nan if fixed_b is None else float(fixed_b)])
+    fams = _fit_families(t2, y2, w2, b_max=b_max, loss=loss, scale=loss_scale, max_iter=max_iter,
+                         tol=tol, fixed_b=fb)
+    forced = None
+    if fixed_b is not None or model is not None:
+        forced = np.array([MODEL_NAMES.index(model or "hyperbolic")])
+    crit, choice = _choose(fams, np.array([n_used]), criterion, forced, fb)
+    fam = MODEL_NAMES[int(choice[0])]
+    res = fams[fam]
+    th = res["theta"][0]
+    w_final = res["weights"][0]
+    dw_local = np.flatnonzero(w_final < downweight_below) if loss != "linear" else np.array([], int)
+    down = tuple(int(i) for i in np.flatnonzero(good)[dw_local])
+    cands = {}
+    for j, f in enumerate(MODEL_NAMES):
+        tf = fams[f]["theta"][0]
+        cands[f] = {"qi": float(np.exp(tf[0])), "di": float(np.exp(tf[1])), "b": float(tf[2]),
+                    "sse_log": float(fams[f]["sse"][0]), "criterion_value": float(crit[0, j]),
+                    "converged": bool(fams[f]["converged"][0])}
+    sse = float(res["sse"][0])
+    return ArpsFit(
+        model=fam, qi=float(np.exp(th[0])), di=float(np.exp(th[1])), b=float(th[2]),
+        sse_log=sse, rmse_log=float(np.sqrt(sse / n_used)), robust_cost=float(res["cost"][0]),
+        criterion=criterion, criterion_value=float(crit[0, int(choice[0])]), n_used=n_used,
+        down_weighted=down, excluded=excluded, candidates=cands, status="ok",
+        converged=bool(res["converged"][0]),
+    )
+
+
+@dataclass(frozen=True)
+class FieldFit:
+    """Result of :func:`fit_field`.
+
+    fits : one row per well and stream (columns in :data:`FIT_COLUMNS`).
+    candidates : one row per well, stream and Arps family fitted (:data:`CANDIDATE_COLUMNS`).
+    settings : the :class:`DeclineSettings` used.
+    messages : notes on the inputs (e.g. overrides naming wells not in the table).
+    """
+
+    fits: pd.DataFrame
+    candidates: pd.DataFrame
+    settings: DeclineSettings
+    messages: tuple[str, ...] = ()
+
+
+#: Columns of ``FieldFit.fits``. ``qi`` is in bbl/d for oil and Mcf/d for gas (producing-day
+#: rate at ``fit_start``), ``di`` nominal 1/yr at ``fit_start``.
+FIT_COLUMNS = [
+    "well_id", "stream", "status", "forecastable", "model", "qi", "di", "b",
+    "fit_start", "fit_end", "peak_month", "regime_start", "regime_source",
+    "n_months_used", "n_months_excluded", "n_months_down_weighted", "months_down_weighted",
+    "sse_log", "rmse_log", "robust_cost", "criterion", "criterion_value", "converged",
+    "n_iter", "override",
+]
+CANDIDATE_COLUMNS = [
+    "well_id", "stream", "family", "qi", "di", "b", "n_params", "sse_log", "rmse_log",
+    "criterion_value", "converged", "chosen",
+]
+_STREAM_COLS = {"oil": ("oil_rate_bbl_d", "oil_bbl"), "gas": ("gas_rate_mcf_d", "gas_mcf")}
+
+
+def _month_int(month: pd.Series | np.ndarray) -> np.ndarray:
+    m = np.asarray(month, dtype="datetime64[M]")
+    return m.astype(np.int64)
+
+
+def _int_to_month(mi: np.ndarray) -> np.ndarray:
+    out = np.asarray(mi, dtype=np.float64)
+    ok = np.isfinite(out)
+    res = np.full(out.shape, np.datetime64("NaT"), dtype="datetime64[ns]")
+    res[ok] = out[ok].astype(np.int64).astype("datetime64[M]").astype("datetime64[ns]")
+    return res
+
+
+def _regime_per_well(regime_start, wells: pd.Index) -> np.ndarray:
+    """Stage tracker's regime start per well as integer months (NaN when none)."""
+    out = np.full(len(wells), np.nan)
+    if regime_start is None:
+        return out
+    if isinstance(regime_start, pd.DataFrame):
+        if not {"well_id", "regime_start"} <= set(regime_start.columns):
+            raise InputError("regime_start table needs columns well_id and regime_start")
+        s = regime_start.set_index("well_id")["regime_start"]
+    elif isinstance(regime_start, pd.Series):
+        s = regime_start
+    else:
+        s = pd.Series(dict(regime_start))
+    s = pd.to_datetime(s, errors="coerce")
+    s = s[~s.index.duplicated(keep="last")].reindex(wells)
+    ok = s.notna().to_numpy()
+    out[ok] = _month_int(s[ok].to_numpy())
+    return out
+
+
+def _override_lookup(overrides, wells: pd.Index, stream: str):
+    """Per-well override objects for one stream; a key (well_id, stream) beats well_id."""
+    res: dict[int, WellOverride] = {}
+    if not overrides:
+        return res
+    pos = pd.Series(np.arange(len(wells)), index=wells)
+    for key, ov in overrides.items():
+        if not isinstance(ov, WellOverride):
+            raise InputError(f"override for {key!r} must be a WellOverride, got {type(ov).__name__}")
+        if isinstance(key, tuple):
+            wid, st = key
+            if st != stream:
+                continue
+        else:
+            wid = key
+            if (wid, stream) in overrides:
+                continue
+        if wid in pos.index:
+            res[int(pos[wid])] = ov
+    return res
+
+
+def _step_starts(w, lr, mi, k, ratio, n_wells):
+    """Last sustained step up per well: median ln-rate of the next k producing months over
+    that of the previous k exceeds ln(ratio). Integer month, NaN when none."""
+    out = np.full(n_wells, -np.inf)
+    n = lr.size
+    if n < 2 * k:
+        return np.full(n_wells, np.nan)
+    first = np.r_[True, w[1:] != w[:-1]]
+    start_idx = np.maximum.accumulate(np.where(first, np.arange(n), 0))
+    pos = np.arange(n) - start_idx
+    counts = np.bincount(w, minlength=n_wells)
+    n_in = counts[w]
+    roll = pd.Series(lr).rolling(k).median().to_numpy()  # median of lr[i-k+1 .. i]
+    prev = np.full(n, np.nan)
+    prev[1:] = roll[:-1]
+    prev[pos < k] = np.nan
+    nxt = np.full(n, np.nan)
+    nxt[: n - k + 1] = roll[k - 1:]
+    nxt[pos + k > n_in] = np.nan
+    step = (nxt - prev) > np.log(ratio)
+    # overlapping windows flag a run of months around one jump: keep the run's first month
+    step[1:] &= ~(step[:-1] & ~first[1:])
+    if step.any():
+        np.maximum.at(out, w[step], mi[step].astype(float))
+    out[~np.isfinite(out)] = np.nan
+    return out
+
+
+def fit_field(
+    production: pd.DataFrame,
+    *,
+    regime_start=None,
+    settings: DeclineSettings | None = None,
+    overrides: Mapping | None = None,
+) -> FieldFit:
+    """Fit the Arps families to every well and stream of a field in one batched pass.
+
+    Parameters
+    ----------
+    production : DataFrame
+        The loader's tidy monthly table (DEVELOPERS.md): ``well_id``, ``month``, ``days_on``,
+        ``days_in_month``, ``oil_rate_bbl_d``, ``gas_rate_mcf_d`` (producing-day rates). Not
+        modified.
+    regime_start : Series, DataFrame or mapping, optional
+        First month of each well's current decline regime from the stage tracker (Series
+        indexed by well_id, a table with ``well_id`` and ``regime_start``, or a dict); NaT
+        for none.
+    settings : DeclineSettings, optional
+        Engine settings; defaults as documented there.
+    overrides : mapping, optional
+        ``well_id`` or ``(well_id, stream)`` -> :class:`WellOverride`.
+
+    Returns
+    -------
+    FieldFit
+        ``fits`` (one row per well and stream, every well of the table) and ``candidates``.
+
+    Notes
+    -----
+    Fit window (per well and stream): producing months (rate > 0, days_on > 0, uptime >=
+    ``min_uptime_fraction``) from the peak of the 3-month running median of the rate, the
+    peak searched from the later of the stage tracker's regime start and the last
+    sustained step up in rate (workover), to the last producing month. t = 0 at the start
+    of the ``fit_start`` month; each month's rate sits at mid-month. Arps (1945) families
+    fitted on ln q with a robust loss by a batched Levenberg-Marquardt over all wells
+    (exact derivatives, per-well damping, bounds 0 <= b <= b_max); the family with the
+    lowest criterion (AICc by default, Hurvich & Tsai 1989) is chosen unless overridden.
+    Wells whose exponential fit declines slower than ``min_decline_nominal`` are
+    "no_decline": forecast by the conservative rule of an exponential at the terminal
+    decline from the geometric-mean rate of their last 3 producing months.
+    """
+    st = settings or DeclineSettings()
+    if not isinstance(production, pd.DataFrame):
+        raise InputError("production must be the loader's monthly table (a DataFrame)")
+    need = {"well_id", "month"}
+    if not need <= set(production.columns):
+        raise InputError(f"production table lacks columns {sorted(need - set(production.columns))}")
+    df = production.sort_values(["well_id", "month"], kind="stable")
+    wells = pd.Index(pd.unique(df["well_id"]))
+    n_wells = len(wells)
+    wcode = pd.Index(wells).get_indexer(df["well_id"])
+    mi_all = _month_int(pd.to_datetime(df["month"]).to_numpy())
+    dim = (df["days_in_month"].to_numpy(float) if "days_in_month" in df
+           else pd.to_datetime(df["month"]).dt.days_in_month.to_numpy(float))
+    days_on = df["days_on"].to_numpy(float) if "days_on" in df else dim.copy()
+    with np.errstate(divide="ignore", invalid="ignore"):
+        uptime = np.where(dim > 0, days_on / dim, 0.0)
+    rs_stage = _regime_per_well(regime_start, wells)
+    messages: list[str] = []
+    if overrides:
+        known = set(wells)
+        unknown = sorted({str(k[0] if isinstance(k, tuple) else k) for k in overrides
+                          if (k[0] if isinstance(k, tuple) else k) not in known})
+        if unknown:
+            messages.append("overrides for wells not in the table were not applied: " + ", ".join(unknown))
+    kw = dict(b_max=st.b_max, loss=st.loss, scale=st.loss_scale, max_iter=st.max_iter, tol=st.tol)
+    fit_tables, cand_tables = [], []
+    for stream in st.streams:
+        rate_col, vol_col = _STREAM_COLS[stream]
+        if rate_col in df:
+            rate = df[rate_col].to_numpy(float)
+        elif vol_col in df:
+            with np.errstate(divide="ignore", invalid="ignore"):
+                rate = df[vol_col].to_numpy(float) / days_on
+        else:
+            continue
+        if stream == "gas" and not np.isfinite(rate).any():
+            continue  # the file has no gas column
+        ovs = _override_lookup(overrides, wells, stream)
+        fres = _fit_stream(stream, wells, wcode, mi_all, rate, days_on, uptime, dim, rs_stage, ovs, st, kw)
+        fit_tables.append(fres[0])
+        cand_tables.append(fres[1])
+    fits = (pd.concat(fit_tables, ignore_index=True) if fit_tables
+            else pd.DataFrame({c: [] for c in FIT_COLUMNS}))
+    cands = (pd.concat(cand_tables, ignore_index=True) if cand_tables
+             else pd.DataFrame({c: [] for c in CANDIDATE_COLUMNS}))
+    return FieldFit(fits=fits[FIT_COLUMNS], candidates=cands[CANDIDATE_COLUMNS], settings=st,
+                    messages=tuple(messages))
+
+
+def _fit_stream(stream, wells, wcode, mi_all, rate, days_on, uptime, dim, rs_stage, ovs, st, kw):
+    n_wells = len(wells)
+    finite = np.isfinite(rate)
+    valid = finite & (rate > 0) & (days_on > 0) & (uptime >= st.min_uptime_fraction)
+    # ---- overrides as arrays
+    ov_start = np.full(n_wells, np.nan)
+    ov_end = np.full(n_wells, np.nan)
+    forced = np.full(n_wells, -1)
+    fixed_b = np.full(n_wells, np.nan)
+    ov_text = np.full(n_wells, "", dtype=object)
+    excl_rows = np.zeros(rate.size, dtype=bool)
+    if ovs:
+        excl_pairs = []
+        for wi_, ov in ovs.items():
+            if ov.fit_start is not None:
+                ov_start[wi_] = _month_int(np.array([ov.fit_start.to_datetime64()]))[0]
+            if ov.fit_end is not None:
+                ov_end[wi_] = _month_int(np.array([ov.fit_end.to_datetime64()]))[0]
+            if ov.b is not None:
+                fixed_b[wi_] = min(float(ov.b), st.b_max)
+                forced[wi_] = 0 if ov.b == 0 else (1 if ov.b == 1 else 2)
+            if ov.model is not None:
+                forced[wi_] = MODEL_NAMES.index(ov.model)
+            ov_text[wi_] = ov.describe()
+            for m in ov.exclude_months:
+                excl_pairs.append((wi_, _month_int(np.array([m.to_datetime64()]))[0]))
+        if excl_pairs:
+            key_all = wcode.astype(np.int64) * 100000 + mi_all
+            key_ex = np.array([a * 100000 + b for a, b in excl_pairs], dtype=np.int64)
+            excl_rows = np.isin(key_all, key_ex)
+    # ---- regime start: stage tracker and detected step up
+    vi = np.flatnonzero(valid)
+    w_v, mi_v, lr_v = wcode[vi], mi_all[vi], np.log(rate[vi])
+    if st.detect_step_changes:
+        rs_step = _step_starts(w_v, lr_v, mi_v, st.step_window_months, st.step_up_ratio, n_wells)
+    else:
+        rs_step = np.full(n_wells, np.nan)
+    rs = np.fmax(rs_stage, rs_step)
+    src = np.where(np.isnan(rs), "none", np.where(rs == rs_stage, "stage tracker", "step change"))
+    # ---- peak of the 3-month running median at or after the regime start
+    sm = pd.Series(lr_v).rolling(3, center=True).median().to_numpy()
+    first = np.r_[True, w_v[1:] != w_v[:-1]] if w_v.size else np.zeros(0, bool)
+    last = np.r_[w_v[1:] != w_v[:-1], True] if w_v.size else np.zeros(0, bool)
+    sm = np.where(first | last | ~np.isfinite(sm), lr_v, sm)
+    after = ~(mi_v < np.nan_to_num(rs[w_v], nan=-1e18))
+    peak = np.full(n_wells, np.nan)
+    if after.any():
+        sub = pd.DataFrame({"w": w_v[after], "sm": sm[after], "mi": mi_v[after]})
+        ix = sub.groupby("w", sort=False)["sm"].idxmax()
+        peak[ix.index.to_numpy()] = sub["mi"].to_numpy()[ix.to_numpy()]
+    last_valid = np.full(n_wells, np.nan)
+    if vi.size:
+        np.fmax.at(last_valid, w_v, mi_v.astype(float))
+    fs = np.where(np.isfinite(ov_start), ov_start, peak)
+    fe = np.where(np.isfinite(ov_end), ov_end, last_valid)
+    src = np.where(np.isfinite(ov_start), "override", src)
+    # ---- window rows
+    fs_r, fe_r = fs[wcode], fe[wcode]
+    in_win = (mi_all >= fs_r) & (mi_all <= fe_r)
+    use = valid & in_win & ~excl_rows
+    n_used = np.bincount(wcode[use], minlength=n_wells)
+    n_in_win = np.bincount(wcode[in_win], minlength=n_wells)
+    # months since fit_start to mid-month, in years (calendar days / 365.25)
+    fs_days = np.where(np.isfinite(fs), fs, 0).astype(np.int64).astype("datetime64[M]").astype("datetime64[D]").astype(np.int64)
+    m_days = mi_all.astype("datetime64[M]").astype("datetime64[D]").astype(np.int64)
+    t_all = (m_days - fs_days[wcode] + dim / 2.0) / DAYS_PER_YEAR
+    # ---- batch the fittable wells, sorted by length, in chunks
+    status = np.full(n_wells, "", dtype=object)
+    fittable = n_used >= st.min_months
+    n_any = np.bincount(wcode[finite & (rate > 0)], minlength=n_wells)
+    status[n_any == 0] = "not fitted: no positive rates"
+    few = (~fittable) & (n_any > 0)
+    status[few] = [f"not fitted: {k} usable months in the fit window, at least {st.min_months} needed"
+                   for k in n_used[few]]
+    fw = np.flatnonzero(fittable)
+    order = fw[np.argsort(n_used[fw], kind="stable")]
+    cs = st.chunk_wells
+    workers = _resolve_workers(st.workers, fw.size, cs)
+    if workers > 1 and fw.size > 0:
+        cs = min(cs, max(256, -(-fw.size // (2 * workers))))
+    chunk_of = np.full(n_wells, -1)
+    row_of = np.full(n_wells, -1)
+    chunk_of[order] = np.arange(order.size) // cs
+    row_of[order] = np.arange(order.size) % cs
+    ur = np.flatnonzero(use & fittable[wcode])
+    ur = ur[np.argsort(chunk_of[wcode[ur]], kind="stable")]
+    first_u = np.r_[True, wcode[ur][1:] != wcode[ur][:-1]] if ur.size else np.zeros(0, bool)
+    sidx = np.maximum.accumulate(np.where(first_u, np.arange(ur.size), 0)) if ur.size else ur
+    pos_u = np.arange(ur.size) - sidx
+    n_chunks = -(-order.size // cs) if order.size else 0
+    bounds = np.searchsorted(chunk_of[wcode[ur]], np.arange(n_chunks + 1))
+    chunks = []
+    for c in range(n_chunks):
+        rows = ur[bounds[c]:bounds[c + 1]]
+        pr = pos_u[bounds[c]:bounds[c + 1]]
+        wells_c = order[c * cs:(c + 1) * cs]
+        k, m = wells_c.size, int(n_used[wells_c].max())
+        T = np.zeros((k, m))
+        Y = np.zeros((k, m))
+        W = np.zeros((k, m))
+        MI = np.full((k, m), -1, dtype=np.int64)
+        rr = row_of[wcode[rows]]
+        T[rr, pr] = t_all[rows]
+        Y[rr, pr] = np.log(rate[rows])
+        W[rr, pr] = 1.0
+        MI[rr, pr] = mi_all[rows]
+        chunks.append({"t": T, "y": Y, "w": W, "mi": MI, "wells": wells_c, "fixed_b": fixed_b[wells_c]})
+    results = _run_chunks(chunks, kw, workers)
+    # ---- gather per well
+    theta = {f: np.full((n_wells, 3), np.nan) for f in MODEL_NAMES}
+    gat = {f: {k: np.full(n_wells, np.nan) for k in ("cost", "sse", "wsse", "n_iter", "converged")} for f in MODEL_NAMES}
+    dw_w, dw_m = [], []
+    for c, res in zip(chunks, results):
+        wc = c["wells"]
+        for f in MODEL_NAMES:
+            theta[f][wc] = res[f]["theta"]
+            for k in gat[f]:
+                gat[f][k][wc] = res[f][k]
+        c["res"] = res
+    crit_all = np.full((n_wells, 3), np.nan)
+    choice = np.full(n_wells, -1)
+    if fw.size:
+        fams_w = {f: {"wsse": gat[f]["wsse"][fw]} for f in MODEL_NAMES}
+        crit, ch = _choose(fams_w, n_used[fw], st.criterion, forced[fw], fixed_b[fw])
+        crit_all[fw] = crit
+        choice[fw] = ch
+    # down-weighted months of the chosen family
+    if st.loss != "linear":
+        for c in chunks:
+            wc = c["wells"]
+            chc = choice[wc]
+            wts = np.stack([c["res"][f]["weights"] for f in MODEL_NAMES])  # (3, k, m)
+            wsel = wts[chc, np.arange(wc.size)]
+            rr, pp = np.nonzero((wsel < st.downweight_below) & (c["w"] > 0))
+            dw_w.append(wc[rr])
+            dw_m.append(c["mi"][rr, pp])
+    dw_w = np.concatenate(dw_w) if dw_w else np.zeros(0, int)
+    dw_m = np.concatenate(dw_m) if dw_m else np.zeros(0, np.int64)
+    n_dw = np.bincount(dw_w, minlength=n_wells)
+    dw_text = np.full(n_wells, "", dtype=object)
+    if dw_w.size:
+        lab = pd.Series(pd.DatetimeIndex(_int_to_month(dw_m)).strftime("%Y-%m"))
+        joined = lab.groupby(dw_w).agg(",".join)
+        dw_text[joined.index.to_numpy()] = joined.to_numpy()
+    # ---- chosen parameters
+    qi = np.full(n_wells, np.nan)
+    di = np.full(n_wells, np.nan)
+    bb = np.full(n_wells, np.nan)
+    model = np.full(n_wells, "", dtype=object)
+    sse = np.full(n_wells, np.nan)
+    rcost = np.full(n_wells, np.nan)
+    conv = np.zeros(n_wells, dtype=bool)
+    n_it = np.zeros(n_wells, dtype=int)
+    for j, f in enumerate(MODEL_NAMES):
+        sel = choice == j
+        qi[sel] = np.exp(theta[f][sel, 0])
+        di[sel] = np.exp(theta[f][sel, 1])
+        bb[sel] = theta[f][sel, 2]
+        model[sel] = f
+        sse[sel] = gat[f]["sse"][sel]
+        rcost[sel] = gat[f]["cost"][sel]
+        conv[sel] = gat[f]["converged"][sel] > 0
+        n_it[sel] = gat[f]["n_iter"][sel]
+    crit_val = np.where(choice >= 0, crit_all[np.arange(n_wells), np.maximum(choice, 0)], np.nan)
+    status[fittable] = "ok"
+    # no decline: exponential candidate flatter than the threshold (and no forced model)
+    flat = fittable & (np.exp(theta["exponential"][:, 1]) < st.min_decline_nominal) & (forced < 0)
+    # rising: enough producing months since the regime start but the peak is too recent
+    n_after = np.bincount(w_v[after], minlength=n_wells) if w_v.size else np.zeros(n_wells, int)
+    rising = (~fittable) & (n_used >= 1) & (n_after >= st.min_months) & ~np.isfinite(ov_start)
+    flat |= rising
+    fs_out = fs.copy()
+    if flat.any():
+        # conservative rule: exponential at the terminal decline from the geometric-mean
+        # rate of the last 3 months used, placed at the start of that 3-month span
+        uu = np.flatnonzero(use & flat[wcode])
+        wu = wcode[uu]
+        lastn = np.r_[wu[1:] != wu[:-1], True]
+        rank_from_end = np.zeros(uu.size, dtype=int)
+        # position from the end within each well
+        cnt = np.bincount(wu, minlength=n_wells)
+        first_u2 = np.r_[True, wu[1:] != wu[:-1]]
+        start2 = np.maximum.accumulate(np.where(first_u2, np.arange(uu.size), 0))
+        rank_from_end = cnt[wu] - 1 - (np.arange(uu.size) - start2)
+        tail = rank_from_end < 3
+        del lastn
+        s_lr = np.bincount(wu[tail], weights=np.log(rate[uu[tail]]), minlength=n_wells)
+        n_t = np.bincount(wu[tail], minlength=n_wells)
+        first_tail = np.full(n_wells, np.nan)
+        np.fmin.at(first_tail, wu[tail], mi_all[uu[tail]].astype(float))
+        fl = np.flatnonzero(flat)
+        qi[fl] = np.exp(s_lr[fl] / n_t[fl])
+        di[fl] = st.d_lim_nominal
+        bb[fl] = 0.0
+        model[fl] = "exponential"
+        fs_out[fl] = first_tail[fl]
+        status[fl] = ("no_decline: rates flat or rising over the fit window; forecast at the "
+                      "terminal decline from the recent mean rate (conservative rule)")
+        forecastable = fittable | flat
+    else:
+        forecastable = fittable
+    bad_conv = fittable & ~flat & ~conv
+    status[bad_conv] = "ok (solver stopped at the iteration cap)"
+    fits = pd.DataFrame({
+        "well_id": wells.to_numpy(),
+        "stream": stream,
+        "status": status,
+        "forecastable": forecastable,
+        "model": model,
+        "qi": qi,
+        "di": di,
+        "b": bb,
+        "fit_start": _int_to_month(fs_out),
+        "fit_end": _int_to_month(np.where(forecastable | np.isfinite(ov_end), fe, np.nan)),
+        "peak_month": _int_to_month(peak),
+        "regime_start": _int_to_month(rs),
+        "regime_source": src,
+        "n_months_used": n_used,
+        "n_months_excluded": n_in_win - n_used,
+        "n_months_down_weighted": n_dw,
+        "months_down_weighted": dw_text,
+        "sse_log": sse,
+        "rmse_log": np.sqrt(sse / np.maximum(n_used, 1)),
+        "robust_cost": rcost,
+        "criterion": st.criterion,
+        "criterion_value": crit_val,
+        "converged": conv,
+        "n_iter": n_it,
+        "override": ov_text,
+    })
+    # candidates: one row per fitted well and family
+    parts = []
+    for j, f in enumerate(MODEL_NAMES):
+        th = theta[f][fw]
+        k_par = np.where(np.isfinite(fixed_b[fw]), 2, 3) if f == "hyperbolic" else np.full(fw.size, 2)
+        parts.append(pd.DataFrame({
+            "well_id": wells.to_numpy()[fw], "stream": stream, "family": f,
+            "qi": np.exp(th[:, 0]), "di": np.exp(th[:, 1]), "b": th[:, 2], "n_params": k_par,
+            "sse_log": gat[f]["sse"][fw], "rmse_log": np.sqrt(gat[f]["sse"][fw] / np.maximum(n_used[fw], 1)),
+            "criterion_value": crit_all[fw, j], "converged": gat[f]["converged"][fw] > 0,
+            "chosen": choice[fw] == j,
+        }))
+    cands = pd.concat(parts, ignore_index=True).sort_values(["well_id", "family"], kind="stable")
+    return fits, cands.reset_index(drop=True)
