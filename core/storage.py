@@ -596,7 +596,15 @@ class Store:
         key = field_key(name)
         found = conn.execute(sa.select(T_FIELDS.c.field_key).where(T_FIELDS.c.field_key == key)).first()
         if found is None:
-            conn.execute(T_FIELDS.insert().values(field_key=key, name=name.strip(), created_at=_now()))
+            # INSERT .. ON CONFLICT DO NOTHING: two writers may register the same field at once.
+            if conn.dialect.name == "postgresql":
+                from sqlalchemy.dialects.postgresql import insert as dialect_insert
+            else:
+                from sqlalchemy.dialects.sqlite import insert as dialect_insert
+            conn.execute(
+                dialect_insert(T_FIELDS).values(field_key=key, name=name.strip(), created_at=_now())
+                .on_conflict_do_nothing(index_elements=["field_key"])
+            )
         return key
 
     def ensure_field(self, name: str) -> str:
