@@ -1,0 +1,53 @@
+"""Depletion Desk dashboard: the router and the controls every page shares.
+
+Start from the repository root: ``python -m streamlit run dashboard/app.py``.
+"""
+
+from __future__ import annotations
+
+import sys
+from pathlib import Path
+
+# The repository root must be importable (``core`` and ``dashboard``) however streamlit is
+# started: its console script puts only this file's folder on sys.path.
+_ROOT = str(Path(__file__).absolute().parents[1])
+if _ROOT not in sys.path:
+    sys.path.append(_ROOT)
+
+import streamlit as st  # noqa: E402
+
+from dashboard import state  # noqa: E402
+
+st.set_page_config(page_title="Depletion Desk", layout="wide")
+state.init_state()
+
+PAGES = [
+    st.Page("pages/load.py", title="Load data", icon=":material/upload_file:", default=True),
+    st.Page("pages/overview.py", title="Field overview", icon=":material/dashboard:"),
+    st.Page("pages/well.py", title="Well review", icon=":material/show_chart:"),
+    st.Page("pages/planning.py", title="Unit planning", icon=":material/water_drop:"),
+    st.Page("pages/exports.py", title="Downloads", icon=":material/download:"),
+    st.Page("pages/settings.py", title="Settings", icon=":material/tune:"),
+    st.Page("pages/about.py", title="About", icon=":material/info:"),
+]
+nav = st.navigation(PAGES)
+
+with st.sidebar:
+    st.markdown("**Depletion Desk**")
+    src = state.current_source()
+    if src is None:
+        st.caption("No data loaded.")
+    else:
+        st.caption(f"Data: {src.name}" + (f" + {src.header_name}" if src.header_name else ""))
+        st.caption("Forecast: " + ("computed" if state.has_run() else "waiting for confirmation on Load data"))
+    s = state.settings()
+    limit = s.get("econ_limit_bopd")
+    st.caption(
+        "Economic limit: "
+        + (f"{limit:g} bbl/d" if limit else ("from prices and costs" if s.get("oil_price") else "default"))
+        + f" · b max {s.get('b_max'):g} · terminal decline {100 * s.get('terminal_decline', 0):.1f} %/yr"
+    )
+    st.caption(f"Overrides and flags: {state.store_status()}")
+    st.caption(state.CAUTION)
+
+nav.run()

@@ -1,0 +1,57 @@
+"""Field overview: headline figures, the well table, stages per unit, the field forecast."""
+
+import streamlit as st
+
+from dashboard import charts, state
+
+st.title("Field overview")
+run = state.require_run()
+state.caution()
+
+h = state.headline(run)
+cols = st.columns(6)
+cols[0].metric("Wells", f"{h['wells']:,}", help="Wells in the file; forecast ones in the table's status column.")
+cols[1].metric("Oil rate now", f"{h['oil_rate_now_bopd']:,.0f} bbl/d", help="Sum of each well's last producing-day oil rate.")
+cols[2].metric("Cumulative oil", f"{h['cum_oil_bbl']:,.0f} bbl")
+cols[3].metric("Remaining oil", f"{h['remaining_oil_bbl']:,.0f} bbl", help="To each well's economic limit.")
+cols[4].metric("EUR oil", f"{h['eur_oil_bbl']:,.0f} bbl")
+cols[5].metric("Wells past the GOR peak", f"{h['wells_past_gor_peak']:,}")
+
+left, right = st.columns(2)
+with left:
+    st.plotly_chart(charts.planning_status_figure(state.planning_counts(run)), key="chart_planning")
+with right:
+    st.plotly_chart(charts.stage_share_figure(run.units), key="chart_stage_share")
+st.plotly_chart(charts.field_rate_figure(state.field_totals(run)), key="chart_field")
+
+st.subheader("Wells")
+w = run.wells
+f1, f2, f3, f4, f5 = st.columns([2, 1, 2, 2, 2])
+units = f1.multiselect("Unit", sorted(w["unit"].astype(str).unique()), key="filter_unit")
+stages = f2.multiselect("Stage", ["1", "2", "3", "4", "n/a"], key="filter_stage")
+statuses = f3.multiselect("Planning status", sorted(w["planning_status"].dropna().unique()), key="filter_status")
+fluids = f4.multiselect("Fluid type", sorted(w["fluid_type"].dropna().unique()), key="filter_fluid")
+search = f5.text_input("Well name contains", key="filter_search")
+table = state.well_table(run, units=units, stages=stages, statuses=statuses, fluids=fluids, search=search)
+st.caption(f"{len(table):,} of {len(w):,} wells. Click a column header to sort; pick a row to open the well.")
+picked = st.dataframe(
+    table,
+    hide_index=True,
+    key="well_table",
+    on_select="rerun",
+    selection_mode="single-row",
+    column_config={
+        "b": st.column_config.NumberColumn("b", format="%.2f"),
+        "qi_bopd": st.column_config.NumberColumn("qi [bbl/d]", format="%.1f"),
+        "di_annual_nominal": st.column_config.NumberColumn("di [1/yr]", format="%.3f"),
+        "cum_oil_bbl": st.column_config.NumberColumn("cum oil [bbl]", format="localized"),
+        "remaining_oil_bbl": st.column_config.NumberColumn("remaining [bbl]", format="localized"),
+        "eur_oil_bbl": st.column_config.NumberColumn("EUR [bbl]", format="localized"),
+        "econ_limit_date": st.column_config.DateColumn("econ-limit month", format="YYYY-MM"),
+        "fit_rmse_log": st.column_config.NumberColumn("fit RMSE (ln rate)", format="%.3f"),
+    },
+)
+rows = picked.selection.rows if picked is not None else []
+if rows:
+    state.select_well(table.iloc[rows[0]]["well_id"])
+    st.switch_page("pages/well.py")

@@ -1,0 +1,1076 @@
+"""Session state and cached calls into ``core`` for the dashboard.
+
+Pages read widgets, call the functions here, and draw with :mod:`dashboard.charts`. Nothing
+here computes engineering results: loading, fitting, stages, forecasts, exports and the
+store all live in ``core``; this module keys them, caches them and keeps the session's
+choices. ``st.cache_data`` / ``st.cache_resource`` appear only in this module.
+
+Caching
+-------
+* a load is keyed on the SHA-256 of the file bytes (and of the well-header file), the column
+  mapping and the input unit system;
+* a run is keyed on the load key, the run settings and the engineer overrides;
+* an override changes only its own well: the well is re-run alone and spliced into the
+  field's run (see :func:`current_run`), so applying one does not re-fit the field;
+* results are held by ``st.cache_resource`` (no copy on each rerun; pages never modify
+  them) with a small ``max_entries`` so memory stays bounded.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import datetime as _dt
+import hashlib
+import inspect
+import json
+import os
+from collections.abc import Callable, Iterable
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any
+
+import pandas as pd
+import streamlit as st
+
+import core
+from core.validation import InputError
+
+ROOT = Path(__file__).absolute().parents[1]
+SAMPLE_PRODUCTION = ROOT / "sample_wells" / "production.csv"
+SAMPLE_HEADER = ROOT / "sample_wells" / "well_header.csv"
+
+CAUTION = (
+    "Forecasts are estimates; reserves bookings and field decisions follow local regulations "
+    "and licensed professional practice."
+)
+
+# ---- session keys (constants; initialised once by init_state) ------------------------------
+SOURCE = "dd_source"  # Source of the current production data
+MAPPING = "dd_mapping"  # user's column mapping corrections, canonical -> source column
+SETTINGS = "dd_settings"  # applied run settings, dict of RunSettings fields
+CONFIRMED = "dd_confirmed"  # load key the user confirmed for computing
+OVERRIDES = "dd_overrides"  # well_id -> WellOverride (session copy; the store keeps the trail)
+OVERRIDE_LOG = "dd_override_log"  # session audit trail when no store is available
+FLAGS = "dd_flags"  # waterflood planning flags (session copy when no store)
+WELL = "dd_well"  # well shown on the well page
+UNIT = "dd_unit"  # unit shown on the planning page
+LAST_ERROR = "dd_last_error"
+TIMINGS = "dd_timings"
+PRESSURE_KIND = "dd_pressure_kind"  # what the pressure column holds (loader option)
+
+#: Environment variable for an app-level upload limit below the server's (MB).
+UPLOAD_LIMIT_ENV = "DEPLETION_DESK_MAX_UPLOAD_MB"
+
+
+@dataclass(frozen=True)
+class Source:
+    """The production file (and optional well-header file) the session works on."""
+
+    kind: str  # "sample" or "upload"
+    name: str
+    content: bytes
+    sha256: str
+    header_name: str | None = None
+    header_content: bytes | None = None
+    header_sha256: str | None = None
+
+
+def _sha(b: bytes | None) -> str | None:
+    return None if b is None else hashlib.sha256(b).hexdigest()
+
+
+def make_source(kind: str, name: str, content: bytes, header_name: str | None = None,
+                header_content: bytes | None = None) -> Source:
+    """A :class:`Source` with the SHA-256 of each file computed once."""
+    return Source(kind, name, bytes(content), _sha(content), header_name,
+                  None if header_content is None else bytes(header_content), _sha(header_content))
+
+
+def sample_source() -> Source:
+    """The bundled sample field (production and well-header files)."""
+    header = SAMPLE_HEADER.read_bytes() if SAMPLE_HEADER.exists() else None
+    return make_source("sample", SAMPLE_PRODUCTION.name, SAMPLE_PRODUCTION.read_bytes(),
+                       SAMPLE_HEADER.name if header is not None else None, header)
+
+
+def default_settings() -> dict[str, Any]:
+    """The run settings' defaults as a dict (from ``core.run.RunSettings``)."""
+    from core.run import RunSettings
+
+    return RunSettings().as_dict()
+
+
+def init_state() -> None:
+    """Initialise every session key once; the bundled sample is the first start's data."""
+    ss = st.session_state
+    if SOURCE not in ss:
+        ss[SOURCE] = sample_source() if SAMPLE_PRODUCTION.exists() else None
+        # The sample is known-good: it is confirmed for computing straight away.
+        ss[CONFIRMED] = None
+    ss.setdefault(MAPPING, {})
+    ss.setdefault(SETTINGS, default_settings())
+    ss.setdefault(OVERRIDES, {})
+    ss.setdefault(OVERRIDE_LOG, [])
+    ss.setdefault(FLAGS, [])
+    ss.setdefault(WELL, None)
+    ss.setdefault(UNIT, None)
+    ss.setdefault(TIMINGS, {})
+    ss.setdefault(PRESSURE_KIND, "average_reservoir")
+    if ss[SOURCE] is not None and ss[SOURCE].kind == "sample" and ss.get(CONFIRMED) is None:
+        ss[CONFIRMED] = load_key()
+    _restore_from_store()
+
+
+# ---- upload limit ------------------------------------------------------------------------------
+def upload_limit_mb() -> float:
+    """Upload limit in MB: the server's ``server.maxUploadSize`` or a lower app-level limit
+    from the environment variable ``DEPLETION_DESK_MAX_UPLOAD_MB``."""
+    server = float(st.get_option("server.maxUploadSize"))
+    env = os.environ.get(UPLOAD_LIMIT_ENV)
+    try:
+        return min(server, float(env)) if env else server
+    except ValueError:
+        return server
+
+
+def check_upload_size(name: str, size_bytes: int) -> str | None:
+    """A clear message when a file exceeds the upload limit, else None."""
+    limit = upload_limit_mb()
+    if size_bytes > limit * 1024 * 1024:
+        return (
+            f"{name} is {size_bytes / 1048576:.1f} MB, above this app's upload limit of "
+            f"{limit:g} MB. Split the file by well or period, or raise the limit "
+            f"(server.maxUploadSize in .streamlit/config.toml, or the {UPLOAD_LIMIT_ENV} "
+            "environment variable)."
+        )
+    return None
+
+
+# ---- the source and its load ------------------------------------------------------------------
+def set_source(source: Source) -> None:
+    """Switch the session to another file; mapping corrections and confirmation are reset."""
+    ss = st.session_state
+    if ss.get(SOURCE) is not None and ss[SOURCE].sha256 == source.sha256 and (
+        ss[SOURCE].header_sha256 == source.header_sha256
+    ):
+        return
+    ss[SOURCE] = source
+    ss[MAPPING] = {}
+    ss[CONFIRMED] = load_key() if source.kind == "sample" else None
+    ss[WELL] = None
+    ss[UNIT] = None
+    ss[OVERRIDES] = {}
+    ss[FLAGS] = []
+    _restore_from_store()
+
+
+def current_source() -> Source | None:
+    return st.session_state.get(SOURCE)
+
+
+def set_mapping(mapping: dict[str, str | None]) -> None:
+    """Store the user's column mapping corrections (canonical name -> source column)."""
+    # None for a recognised column means "ignore it" (core.production.load_production).
+    recognised = current_load().mapping
+    clean = {k: (v or None) for k, v in mapping.items() if v or k in recognised}
+    clean = {k: v for k, v in clean.items() if recognised.get(k) != v}
+    if clean != st.session_state.get(MAPPING):
+        st.session_state[MAPPING] = clean
+        st.session_state[CONFIRMED] = None
+
+
+def _settings_obj():
+    from core.run import RunSettings
+
+    names = {f.name for f in dataclasses.fields(RunSettings)}
+    return RunSettings(**{k: v for k, v in st.session_state[SETTINGS].items() if k in names})
+
+
+def load_key() -> str | None:
+    """Cache key of the current load: file hashes, mapping and input units."""
+    src = current_source()
+    if src is None:
+        return None
+    ss = st.session_state
+    units = ss.get(SETTINGS, {}).get("units", "field")
+    unit_col = ss.get(SETTINGS, {}).get("unit_column")
+    mapping = json.dumps(sorted(ss.get(MAPPING, {}).items()), default=str)
+    return "|".join([src.sha256, str(src.header_sha256), mapping, str(units), str(unit_col), ss.get(PRESSURE_KIND, "")])
+
+
+def _call_loader(src: Source, mapping: dict, units: str, unit_column: str | None, pressure_kind: str):
+    """Call ``core.production.load_production`` on the session's files (bytes in memory)."""
+    from core.production import load_production
+
+    return load_production(
+        src.content,
+        file_name=src.name,
+        mapping=mapping or None,
+        units=units,
+        unit_column=unit_column or None,
+        well_header=src.header_content,
+        pressure_kind=pressure_kind,
+        max_bytes=int(upload_limit_mb() * 1024 * 1024),
+    )
+
+
+@st.cache_resource(max_entries=6, show_spinner=False)
+def _cached_load(key: str, _src: Source, _mapping: dict, _units: str, _unit_column: str | None, _pressure_kind: str):
+    return _call_loader(_src, _mapping, _units, _unit_column, _pressure_kind)
+
+
+def current_load():
+    """The current :class:`core.production.LoadResult`, or raise :class:`InputError`.
+
+    Bad files give an ``InputError`` with one clear message (from the loader); the page shows
+    it. The load is cached on the file hashes, mapping and input units.
+    """
+    src = current_source()
+    if src is None:
+        raise InputError("no production data loaded yet: upload a file or open the sample field")
+    ss = st.session_state
+    settings = ss[SETTINGS]
+    return _cached_load(load_key(), src, dict(ss[MAPPING]), settings.get("units", "field"),
+                        settings.get("unit_column"), ss[PRESSURE_KIND])
+
+
+def file_columns() -> list[str]:
+    """Column headers of the current production file (read with ``core.production.read_table``)."""
+    src = current_source()
+    return _file_columns(src.sha256, src)
+
+
+@st.cache_data(max_entries=8, show_spinner=False)
+def _file_columns(sha: str, _src: Source) -> list[str]:
+    from core.production import read_table
+
+    try:
+        return [str(c) for c in read_table(_src.content, file_name=_src.name, nrows=5).frame.columns]
+    except InputError:
+        return []
+
+
+def canonical_columns() -> list[str]:
+    """Canonical input columns the loader recognises (production file and well header)."""
+    from core.production import CANONICAL_FIELDS
+
+    return list(CANONICAL_FIELDS)
+
+
+def mapping_table(load) -> pd.DataFrame:
+    """The recognised mapping as a two-column table (canonical column, file column)."""
+    cols = canonical_columns()
+    rows = [(c, load.mapping.get(c, "")) for c in cols]
+    rows += [(c, v) for c, v in load.mapping.items() if c not in cols]
+    return pd.DataFrame(rows, columns=["canonical column", "file column"])
+
+
+def confirm_current_load() -> None:
+    st.session_state[CONFIRMED] = load_key()
+
+
+def is_confirmed() -> bool:
+    key = load_key()
+    return key is not None and st.session_state.get(CONFIRMED) == key
+
+
+# ---- settings ---------------------------------------------------------------------------------
+def apply_settings(values: dict[str, Any]) -> None:
+    """Validate new settings through ``core.run.RunSettings`` and store them.
+
+    Raises :class:`InputError` with core's message when a value is out of range.
+    """
+    from core.run import RunSettings
+
+    names = {f.name for f in dataclasses.fields(RunSettings)}
+    merged = dict(st.session_state[SETTINGS])
+    merged.update({k: v for k, v in values.items() if k in names})
+    validated = RunSettings(**merged)  # raises InputError with one message
+    st.session_state[SETTINGS] = validated.as_dict()
+
+
+def settings() -> dict[str, Any]:
+    return dict(st.session_state[SETTINGS])
+
+
+# ---- overrides ---------------------------------------------------------------------------------
+def _override_key(overrides: dict) -> str:
+    items = []
+    for w in sorted(overrides):
+        o = overrides[w]
+        d = dataclasses.asdict(o)
+        d.pop("author", None)
+        d.pop("reason", None)
+        items.append((w, json.dumps(d, default=str, sort_keys=True)))
+    return json.dumps(items)
+
+
+def make_override(*, model: str | None, b: float | None, fit_start: Any, fit_end: Any,
+                  exclude_months: Iterable[Any], reason: str, author: str):
+    """A :class:`core.decline.WellOverride` from the form's values (reason required)."""
+    from core.decline import WellOverride
+
+    if not reason or not reason.strip():
+        raise InputError("an override needs a reason: say why the machine's fit is overruled")
+
+    def month(v):
+        return None if v is None or v == "" else pd.Timestamp(v)
+
+    return WellOverride(
+        model=model or None,
+        b=None if b is None else float(b),
+        fit_start=month(fit_start),
+        fit_end=month(fit_end),
+        exclude_months=tuple(sorted(pd.Timestamp(m) for m in exclude_months)),
+        reason=reason.strip(),
+        author=(author or "").strip() or "unnamed",
+    )
+
+
+def apply_override(well_id: str, override) -> None:
+    """Apply an override to a well and record it (store when available, else session)."""
+    st.session_state[OVERRIDES] = {**st.session_state[OVERRIDES], well_id: override}
+    entry = {
+        "time": _dt.datetime.now(_dt.timezone.utc).strftime("%Y-%m-%d %H:%M:%S UTC"),
+        "well_id": well_id,
+        "action": "applied",
+        **{k: (", ".join(m.strftime("%Y-%m") for m in v) if k == "exclude_months" else v)
+           for k, v in dataclasses.asdict(override).items()},
+    }
+    _record_override(entry, override, well_id)
+
+
+def clear_override(well_id: str, reason: str = "", author: str = "") -> None:
+    """Remove a well's override (the removal is recorded, the trail kept)."""
+    if well_id not in st.session_state[OVERRIDES]:
+        return
+    rest = dict(st.session_state[OVERRIDES])
+    rest.pop(well_id)
+    st.session_state[OVERRIDES] = rest
+    entry = {
+        "time": _dt.datetime.now(_dt.timezone.utc).strftime("%Y-%m-%d %H:%M:%S UTC"),
+        "well_id": well_id, "action": "removed", "reason": reason or "override removed",
+        "author": author or "unnamed",
+    }
+    _record_override(entry, None, well_id)
+
+
+def override_for(well_id: str):
+    return st.session_state[OVERRIDES].get(well_id)
+
+
+def override_log(well_id: str | None = None) -> pd.DataFrame:
+    """The override audit trail (append-only, from the store; this session's when no store)."""
+    store = _store()
+    if store is not None:
+        try:
+            log = store.override_history(store_field(), well_id)
+            log = log.assign(value=log["value"].map(lambda v: "" if v is None else str(v)),
+                             entered_at=log["entered_at"].dt.strftime("%Y-%m-%d %H:%M:%S UTC"))
+            return log[["entered_at", "well_id", "what", "value", "entry_type", "reason", "author"]]
+        except (ValueError, OSError) as exc:
+            st.session_state[LAST_ERROR] = f"the override record could not be read: {exc}"
+    log = pd.DataFrame(st.session_state[OVERRIDE_LOG])
+    if well_id is not None and not log.empty:
+        log = log.loc[log["well_id"] == well_id]
+    return log
+
+
+# ---- flags -------------------------------------------------------------------------------------
+FLAG_WORD = "waterflood_planning"
+
+
+def add_flag(kind: str, target: str, note: str, author: str = "") -> None:
+    """Flag a unit or a well for waterflood planning with a note (kept in the store)."""
+    if kind not in ("unit", "well"):
+        raise InputError(f"a flag is for a 'unit' or a 'well', got {kind!r}")
+    if not note or not note.strip():
+        raise InputError("a waterflood planning flag needs a note")
+    author = (author or "").strip() or "unnamed"
+    entry = {
+        "time": _dt.datetime.now(_dt.timezone.utc).strftime("%Y-%m-%d %H:%M:%S UTC"),
+        "kind": kind, "target": str(target), "note": note.strip(), "author": author,
+    }
+    store = _store()
+    if store is not None:
+        try:
+            store.set_flag(store_field(), kind, str(target), flag=FLAG_WORD, note=entry["note"], author=author)
+            return
+        except (ValueError, OSError) as exc:
+            st.session_state[LAST_ERROR] = f"flag kept in this session only: {exc}"
+    st.session_state[FLAGS] = [*st.session_state[FLAGS], entry]
+
+
+def flags_table() -> pd.DataFrame:
+    """The current waterflood planning flags (latest entry per unit or well)."""
+    cols = ["time", "kind", "target", "note", "author"]
+    store = _store()
+    if store is not None:
+        try:
+            f = store.current_flags(store_field())
+            f = f.loc[f["flag"] == FLAG_WORD]
+            out = pd.DataFrame({
+                "time": f["entered_at"].dt.strftime("%Y-%m-%d %H:%M:%S UTC"), "kind": f["scope"],
+                "target": f["target"], "note": f["note"], "author": f["author"],
+            })
+            return pd.concat([out, pd.DataFrame(st.session_state[FLAGS], columns=cols)], ignore_index=True)
+        except (ValueError, OSError) as exc:
+            st.session_state[LAST_ERROR] = f"flags could not be read from the store: {exc}"
+    return pd.DataFrame(st.session_state[FLAGS], columns=cols)
+
+
+# ---- the store (core.storage) ---------------------------------------------------------------
+#: Environment variable naming the store (SQLite file or folder, or a database URL); default
+#: the data folder of ``core.storage.default_data_folder`` ($DEPLETION_DESK_DATA).
+STORE_ENV = "DEPLETION_DESK_DB"
+STORE_FIELD = "dd_store_field"  # field name the session's records are kept under
+_OVERRIDE_WHATS = ("model", "b", "fit_start", "fit_end", "exclude_months")
+
+
+@st.cache_resource(show_spinner=False)
+def _open_store(location: str | None):
+    from core.storage import open_store
+
+    return open_store(location or None)
+
+
+def _store():
+    """The shared store, or None when it cannot be opened (the reason is shown once)."""
+    try:
+        from core.storage import default_data_folder
+
+        return _open_store(os.environ.get(STORE_ENV) or str(default_data_folder()))
+    except (ImportError, ValueError, OSError) as exc:
+        st.session_state[LAST_ERROR] = f"the store cannot be opened ({exc}); overrides and flags are kept in this session only"
+        return None
+
+
+def store_field() -> str:
+    """Field name the session's records are kept under (from the production file's name)."""
+    src = current_source()
+    if src is None:
+        return "field"
+    try:
+        from core.storage import default_field_name
+
+        return default_field_name(src.name)
+    except ImportError:
+        return src.name
+
+
+def _record_override(entry: dict, override, well_id: str) -> None:
+    st.session_state[OVERRIDE_LOG] = [*st.session_state[OVERRIDE_LOG], entry]
+    store = _store()
+    if store is None:
+        return
+    field, author = store_field(), entry.get("author") or "unnamed"
+    reason = entry.get("reason") or "override removed"
+    try:
+        previous = store.well_overrides(field).get(well_id)
+        for what in _OVERRIDE_WHATS:
+            value = None if override is None else getattr(override, what)
+            if what == "exclude_months" and value is not None:
+                value = [pd.Timestamp(m).strftime("%Y-%m") for m in value] or None
+            if value is not None:
+                store.add_override(field, well_id, what, value, reason=reason, author=author)
+            elif previous is not None and getattr(previous, what) not in (None, ()):
+                store.clear_override(field, well_id, what, reason=reason, author=author)
+    except (ValueError, OSError) as exc:
+        st.session_state[LAST_ERROR] = f"override kept in this session only: {exc}"
+
+
+def _restore_from_store() -> None:
+    """Take the store's overrides and flags for the current field into the session (once per
+    field), so a reopened app or a new tab shows the team's work."""
+    ss = st.session_state
+    field = store_field()
+    if ss.get(STORE_FIELD) == field:
+        return
+    ss[STORE_FIELD] = field
+    store = _store()
+    if store is None:
+        return
+    try:
+        ss[OVERRIDES] = dict(store.well_overrides(field))
+    except (ValueError, OSError) as exc:
+        ss[LAST_ERROR] = f"overrides could not be read from the store: {exc}"
+
+
+def store_status() -> str:
+    store = _store()
+    return "session only (the store cannot be opened)" if store is None else f"kept in the store ({store.location})"
+
+
+# ---- the run -----------------------------------------------------------------------------------
+def run_key() -> str | None:
+    lk = load_key()
+    if lk is None:
+        return None
+    return "|".join([lk, json.dumps(st.session_state[SETTINGS], sort_keys=True, default=str),
+                     _override_key(st.session_state[OVERRIDES])])
+
+
+class _LRU:
+    """A small thread-safe least-recently-used map shared by all sessions (st.cache_resource)."""
+
+    def __init__(self, size: int) -> None:
+        import threading
+        from collections import OrderedDict
+
+        self.size = size
+        self.items: OrderedDict[str, Any] = OrderedDict()
+        self.lock = threading.Lock()
+
+    def get(self, key: str) -> Any:
+        with self.lock:
+            if key in self.items:
+                self.items.move_to_end(key)
+                return self.items[key]
+        return None
+
+    def put(self, key: str, value: Any) -> None:
+        with self.lock:
+            self.items[key] = value
+            self.items.move_to_end(key)
+            while len(self.items) > self.size:
+                self.items.popitem(last=False)
+
+
+@st.cache_resource(show_spinner=False)
+def _runs() -> _LRU:
+    # Runs are held here rather than by decorating the run call, so that the progress bar
+    # drawn while a run is computed is not recorded and replayed by Streamlit's cache.
+    return _LRU(RUN_CACHE_SIZE)
+
+
+RUN_CACHE_SIZE = 8
+
+
+def _compute_run(load, settings_obj, overrides: dict, progress: Callable | None):
+    from core.run import run_field
+
+    return run_field(load, settings=settings_obj, overrides=overrides or None, progress=progress)
+
+
+def has_run() -> bool:
+    """True when the current inputs have been confirmed (a run can be shown)."""
+    return is_confirmed()
+
+
+def cached_run():
+    """The current run when it is already computed, else None (never computes)."""
+    if not is_confirmed():
+        return None
+    return _runs().get(run_key())
+
+
+def current_run(progress: Callable[[float, str], None] | None = None):
+    """The :class:`core.run.RunResult` for the current load, settings and overrides.
+
+    Returns None until the user has confirmed the load. Raises :class:`InputError` for a
+    file or setting that cannot be used. Computed once per input change, then cached.
+    """
+    if not is_confirmed():
+        return None
+    key = run_key()
+    cache = _runs()
+    run = cache.get(key)
+    if run is not None:
+        return run
+    load = current_load()
+    ss = st.session_state
+    run = _compute_run(load, _settings_obj(), dict(ss[OVERRIDES]), progress)
+    cache.put(key, run)
+    return run
+
+
+# ---- views of a run (cached on the run key) -----------------------------------------------------
+def headline(run) -> dict[str, Any]:
+    """Headline figures of a run, from ``RunResult.summary`` and the wells table."""
+    s = dict(run.summary or {})
+    w = run.wells
+    out = {
+        "wells": s.get("wells_read", len(w)),
+        "wells_forecast": s.get("wells_forecast", None),
+        "oil_rate_now_bopd": s.get("oil_rate_now_bopd", _sum(w, "last_oil_rate_bopd")),
+        "cum_oil_bbl": s.get("cum_oil_bbl", _sum(w, "cum_oil_bbl")),
+        "remaining_oil_bbl": s.get("remaining_oil_bbl", _sum(w, "remaining_oil_bbl")),
+        "eur_oil_bbl": s.get("eur_oil_bbl", _sum(w, "eur_oil_bbl")),
+        "wells_past_gor_peak": s.get("wells_past_gor_peak", int(w["passed_gor_peak"].fillna(False).astype(bool).sum())),
+    }
+    return out
+
+
+def _sum(frame: pd.DataFrame, column: str) -> float:
+    return float(frame[column].sum(skipna=True)) if column in frame else float("nan")
+
+
+def planning_counts(run) -> pd.DataFrame:
+    """Wells per planning status (table for the bar chart)."""
+    c = run.wells["planning_status"].fillna("not_applicable").value_counts()
+    order = ["window_ahead", "window_open", "window_closing", "window_passed", "not_applicable"]
+    c = c.reindex([s for s in order if s in c.index] + [s for s in c.index if s not in order])
+    return pd.DataFrame({"planning_status": c.index, "wells": c.to_numpy()})
+
+
+WELL_TABLE_COLUMNS = [
+    "well_id", "unit", "fluid_type", "stage", "planning_status", "status", "model", "b",
+    "qi_bopd", "di_annual_nominal", "cum_oil_bbl", "remaining_oil_bbl", "eur_oil_bbl",
+    "econ_limit_date", "fit_rmse_log", "fit_criterion", "passed_gor_peak", "override",
+]
+
+
+def well_table(run, *, units: Iterable[str] = (), stages: Iterable[Any] = (), statuses: Iterable[str] = (),
+               fluids: Iterable[str] = (), search: str = "") -> pd.DataFrame:
+    """The well table, filtered by unit, stage, planning status, fluid type and well name."""
+    w = run.wells
+    keep = pd.Series(True, index=w.index)
+    units, stages, statuses, fluids = list(units), list(stages), list(statuses), list(fluids)
+    if units:
+        keep &= w["unit"].isin(units)
+    if stages:
+        label = w["stage"].astype("string").fillna("n/a")
+        keep &= label.isin([str(s) for s in stages])
+    if statuses:
+        keep &= w["planning_status"].isin(statuses)
+    if fluids:
+        keep &= w["fluid_type"].isin(fluids)
+    if search:
+        keep &= w["well_id"].astype(str).str.contains(search, case=False, regex=False)
+    cols = [c for c in WELL_TABLE_COLUMNS if c in w]
+    return w.loc[keep, cols].reset_index(drop=True)
+
+
+def well_ids(run) -> list[str]:
+    return run.wells["well_id"].astype(str).tolist()
+
+
+def field_totals(run) -> pd.DataFrame:
+    """Field oil rate per month (actual and forecast) from the run's monthly table.
+
+    The rate is the month's field oil volume over the month's calendar days [bbl/d].
+    """
+    return _field_totals(run_key(), run)
+
+
+@st.cache_data(max_entries=8, show_spinner=False)
+def _field_totals(key: str, _run) -> pd.DataFrame:
+    m = _run.monthly
+    g = m.groupby(["month", "kind"], as_index=False, sort=True)["oil_bbl"].sum()
+    g["oil_rate_bopd"] = g["oil_bbl"] / g["month"].dt.days_in_month
+    return g
+
+
+def well_row(run, well_id: str) -> pd.Series:
+    w = run.wells
+    return w.loc[w["well_id"].astype(str) == str(well_id)].iloc[0]
+
+
+def well_history(well_id: str) -> pd.DataFrame:
+    """The well's rows of the tidy monthly table (as loaded)."""
+    p = current_load().production
+    return p.loc[p["well_id"].astype(str) == str(well_id)]
+
+
+def well_forecast(run, well_id: str) -> pd.DataFrame:
+    """The well's forecast months: ``month``, ``rate`` [bbl/d], ``cum_oil_bbl``, ``oil_bbl``."""
+    m = run.monthly
+    f = m.loc[(m["well_id"].astype(str) == str(well_id)) & (m["kind"] == "forecast")]
+    return f.rename(columns={"oil_rate_bopd": "rate"})
+
+
+def well_candidates(run, well_id: str) -> pd.DataFrame:
+    c = run.candidates
+    if c is None or c.empty or "well_id" not in c:
+        return pd.DataFrame()
+    return c.loc[c["well_id"].astype(str) == str(well_id)].reset_index(drop=True)
+
+
+def fitted_curve(run, well_id: str, stream: str = "oil") -> pd.DataFrame:
+    """The fitted Arps curve over the well's fit window: ``month``, ``rate`` [bbl/d or Mcf/d].
+
+    Evaluated with ``core.decline``'s closed forms from the fit parameters in the wells table
+    (qi at ``fit_start``, nominal di in 1/yr, b; the modified hyperbolic switches to the
+    terminal decline). Time is measured from ``fit_start`` in years of 365.25 d, as in
+    ``core.decline``.
+    """
+    from core import decline
+
+    row = well_row(run, well_id)
+    cols = {"oil": ("qi_bopd", "di_annual_nominal", "b", "model"),
+            "gas": ("gas_qi_mcf_d", "gas_di_annual_nominal", "gas_b", "gas_model")}[stream]
+    qi, di, b, model = (row.get(c) for c in cols)
+    empty = pd.DataFrame(columns=["month", "rate"])
+    if any(v is None or pd.isna(v) for v in (qi, di, row.get("fit_start"), row.get("fit_end"))):
+        return empty
+    months = pd.date_range(row["fit_start"], row["fit_end"], freq="MS")
+    t_yr = (months - pd.Timestamp(row["fit_start"])).days.to_numpy() / decline.DAYS_PER_YEAR
+    b = 0.0 if b is None or pd.isna(b) else float(b)
+    term = row.get("terminal_decline_annual_effective")
+    try:
+        if model == "modified_hyperbolic" and b > 0 and term is not None and pd.notna(term):
+            d_lim = decline.nominal_from_tangent_effective(float(term))
+            rate = decline.modified_hyperbolic_rate(t_yr, float(qi), float(di), b, d_lim)
+        else:
+            rate = decline.arps_rate(t_yr, float(qi), float(di), b)
+    except ValueError:
+        return empty
+    return pd.DataFrame({"month": months, "rate": rate})
+
+
+def excluded_months(run, well_id: str) -> list[pd.Timestamp]:
+    """Months left out of the well's fit: the engineer's exclusions plus any the engine reports."""
+    out: list[pd.Timestamp] = []
+    ov = override_for(well_id)
+    if ov is not None:
+        out += [pd.Timestamp(m) for m in ov.exclude_months]
+    fits = getattr(run, "fits", None)
+    if fits is not None and not fits.empty and "excluded_months" in fits:
+        rows = fits.loc[fits["well_id"].astype(str) == str(well_id), "excluded_months"]
+        for v in rows:
+            if isinstance(v, (list, tuple)):
+                out += [pd.Timestamp(m) for m in v]
+    return sorted(set(out))
+
+
+def well_stage_events(row: pd.Series) -> dict[str, Any]:
+    """Detected dates to mark on the GOR/pressure chart."""
+    return {
+        "bubble point": row.get("bubble_point_date"),
+        "GOR back above Rsi": row.get("stage2_end_date"),
+        "GOR peak": row.get("gor_peak_date"),
+    }
+
+
+def unit_names(run) -> list[str]:
+    return run.units["unit"].astype(str).tolist()
+
+
+def unit_expected_path(run, unit: str) -> pd.DataFrame | None:
+    """Expected GOR and pressure path of a unit from the material-balance history match.
+
+    Returns None when ``core.history_match`` is not available or cannot match the unit.
+    """
+    try:
+        from core import history_match
+    except ImportError:
+        return None
+    fn = getattr(history_match, "expected_path", None) or getattr(history_match, "unit_expected_path", None)
+    if fn is None:
+        return None
+    try:
+        return fn(current_load(), run, unit)
+    except Exception:
+        return None
+
+
+def unit_observed(unit: str) -> pd.DataFrame:
+    """Observed unit history for the planning chart: ``month``, ``gor_scf_stb`` (unit gas over
+    unit oil) and ``pressure_psia`` (mean of the surveys in the month)."""
+    return _unit_observed(load_key(), unit)
+
+
+@st.cache_data(max_entries=32, show_spinner=False)
+def _unit_observed(key: str, unit: str) -> pd.DataFrame:
+    p = current_load().production
+    u = p.loc[p["unit"].astype(str) == str(unit)]
+    g = u.groupby("month", as_index=False).agg(oil_bbl=("oil_bbl", "sum"), gas_mcf=("gas_mcf", "sum"),
+                                               pressure_psia=("pressure_psia", "mean"))
+    g["gor_scf_stb"] = (1000.0 * g["gas_mcf"] / g["oil_bbl"].where(g["oil_bbl"] > 0))
+    return g
+
+
+# ---- exports -----------------------------------------------------------------------------------
+def export_csv(run, wells: Iterable[str] | None) -> dict[str, bytes]:
+    """CSV bytes of the run's tables (one well, a selection, or the field when ``wells`` is None)."""
+    return _export_csv(run_key(), None if wells is None else tuple(sorted(wells)), run)
+
+
+@st.cache_data(max_entries=16, show_spinner=False)
+def _export_csv(key: str, wells: tuple | None, _run) -> dict[str, bytes]:
+    from core.export import tables_to_csv_bytes
+
+    return tables_to_csv_bytes(_run, wells=wells)
+
+
+def export_xlsx(run, wells: Iterable[str] | None) -> bytes:
+    """XLSX workbook bytes of the run (cover sheet with inputs and cautions, then the tables)."""
+    return _export_xlsx(run_key(), None if wells is None else tuple(sorted(wells)), run)
+
+
+@st.cache_data(max_entries=16, show_spinner=False)
+def _export_xlsx(key: str, wells: tuple | None, _run) -> bytes:
+    from core.export import run_to_xlsx_bytes
+
+    return run_to_xlsx_bytes(_run, wells=wells)
+
+
+def flags_csv() -> bytes:
+    from core.export import table_to_csv_bytes
+
+    return table_to_csv_bytes(flags_table())
+
+
+def version() -> str:
+    return getattr(core, "__version__", "unknown")
+
+
+# ---- page helpers ------------------------------------------------------------------------------
+def require_run():
+    """The current run for a page, or a note pointing to the Load data page (and stop).
+
+    A run not yet cached (new settings or overrides) is computed here with a progress bar.
+    """
+    if current_source() is None or not is_confirmed():
+        st.info("No forecast yet: load a file (or the sample field) and confirm it on the Load data page.")
+        st.page_link("pages/load.py", label="Go to Load data", icon=":material/upload_file:")
+        st.stop()
+    run = cached_run()
+    if run is not None:
+        return run
+    bar = st.progress(0.0, text="Computing the forecast")
+
+    def progress(frac: float, message: str) -> None:
+        bar.progress(min(max(float(frac), 0.0), 1.0), text=message or "Computing the forecast")
+
+    try:
+        run = current_run(progress=progress)
+    except InputError as exc:
+        bar.empty()
+        st.error(str(exc))
+        st.stop()
+    bar.empty()
+    return run
+
+
+def caution() -> None:
+    """The caution shown wherever forecasts or planning statuses appear."""
+    st.caption(f":warning: {CAUTION}")
+
+
+def use_upload(production_file, header_file=None) -> None:
+    """Make the uploaded files the session's data (hashed once per uploaded file)."""
+    ids = (production_file.file_id, None if header_file is None else header_file.file_id)
+    if st.session_state.get("dd_upload_ids") == ids:
+        return
+    st.session_state["dd_upload_ids"] = ids
+    set_source(make_source(
+        "upload", production_file.name, production_file.getvalue(),
+        None if header_file is None else header_file.name,
+        None if header_file is None else header_file.getvalue(),
+    ))
+
+
+def load_well_count(load) -> int:
+    return int(load.production["well_id"].nunique()) if "well_id" in load.production else 0
+
+
+def select_well(well_id: str) -> None:
+    st.session_state[WELL] = str(well_id)
+
+
+def selected_well(run) -> str | None:
+    ids = well_ids(run)
+    w = st.session_state.get(WELL)
+    if w not in ids:
+        w = ids[0] if ids else None
+        st.session_state[WELL] = w
+    return w
+
+
+OVERRIDE_FORM_KEYS = ("ov_model", "ov_fix_b", "ov_b", "ov_start", "ov_end", "ov_exclude", "ov_reason", "ov_author")
+
+
+def on_well_pick() -> None:
+    """Callback of the well picker: remember the well, reset the override form."""
+    select_well(st.session_state["well_pick"])
+    for k in OVERRIDE_FORM_KEYS:
+        st.session_state.pop(k, None)
+
+
+def text(value: Any) -> str:
+    return "" if value is None or (not isinstance(value, str) and pd.isna(value)) else str(value)
+
+
+def month_text(value: Any) -> str:
+    return "" if value is None or pd.isna(value) else pd.Timestamp(value).strftime("%Y-%m")
+
+
+def months_text(values: Iterable[Any]) -> list[str]:
+    return [month_text(v) for v in values]
+
+
+def month_choices(history: pd.DataFrame) -> list[str]:
+    return months_text(history["month"])
+
+
+def month_index(months: list[str], value: Any) -> int:
+    m = month_text(value)
+    return months.index(m) + 1 if m in months else 0
+
+
+def stage_text(row: pd.Series) -> str:
+    s = row.get("stage")
+    return "n/a" if s is None or pd.isna(s) else str(int(s))
+
+
+def fit_facts(row: pd.Series) -> pd.DataFrame:
+    """The fit's parameters and quality figures from the wells table, as label/value rows."""
+    labels = [
+        ("model", "model"), ("fit window start", "fit_start"), ("fit window end", "fit_end"),
+        ("qi at fit start [bbl/d]", "qi_bopd"), ("di, nominal [1/yr]", "di_annual_nominal"), ("b", "b"),
+        ("terminal decline, effective [1/yr]", "terminal_decline_annual_effective"),
+        ("economic limit [bbl/d]", "econ_limit_bopd"), ("months used", "fit_months_used"),
+        ("months excluded", "fit_months_excluded"), ("months down-weighted", "fit_months_down_weighted"),
+        ("RMSE of ln rate", "fit_rmse_log"), ("choice criterion", "fit_criterion"),
+        ("gas model", "gas_model"), ("override", "override"), ("status", "status"),
+    ]
+    rows = []
+    for label, col in labels:
+        if col not in row.index:
+            continue
+        v = row[col]
+        if isinstance(v, pd.Timestamp):
+            v = month_text(v)
+        elif isinstance(v, float):
+            v = "" if pd.isna(v) else f"{v:.4g}"
+        rows.append((label, text(v)))
+    return pd.DataFrame(rows, columns=["item", "value"])
+
+
+# ---- unit planning -----------------------------------------------------------------------------
+UNIT_TABLE_COLUMNS = [
+    "unit", "stage", "stage_confidence", "planning_status", "n_wells", "share_stage_1", "share_stage_2",
+    "share_stage_3", "share_stage_4", "share_not_applicable", "bubble_point_date", "months_since_bubble_point",
+    "gor_peak_date", "months_to_gor_peak_est", "n_wells_past_gor_peak", "cum_oil_bbl", "remaining_oil_bbl",
+    "eur_oil_bbl",
+]
+
+
+def units_table(run) -> pd.DataFrame:
+    return run.units[[c for c in UNIT_TABLE_COLUMNS if c in run.units]]
+
+
+def units_column_config() -> dict:
+    share = {f"share_stage_{i}": st.column_config.NumberColumn(f"stage {i}", format="percent") for i in (1, 2, 3, 4)}
+    return {
+        **share,
+        "share_not_applicable": st.column_config.NumberColumn("n/a", format="percent"),
+        "bubble_point_date": st.column_config.DateColumn("bubble point", format="YYYY-MM"),
+        "gor_peak_date": st.column_config.DateColumn("GOR peak", format="YYYY-MM"),
+        "months_since_bubble_point": st.column_config.NumberColumn("months since bubble point", format="%.0f"),
+        "months_to_gor_peak_est": st.column_config.NumberColumn("est. months to GOR peak", format="%.0f"),
+        "cum_oil_bbl": st.column_config.NumberColumn("cum oil [bbl]", format="localized"),
+        "remaining_oil_bbl": st.column_config.NumberColumn("remaining [bbl]", format="localized"),
+        "eur_oil_bbl": st.column_config.NumberColumn("EUR [bbl]", format="localized"),
+    }
+
+
+def selected_unit(run) -> str | None:
+    names = unit_names(run)
+    u = st.session_state.get(UNIT)
+    if u not in names:
+        u = names[0] if names else None
+        st.session_state[UNIT] = u
+    return u
+
+
+def on_unit_pick() -> None:
+    st.session_state[UNIT] = st.session_state["unit_pick"]
+
+
+def unit_row(run, unit: str) -> pd.Series:
+    u = run.units
+    return u.loc[u["unit"].astype(str) == str(unit)].iloc[0]
+
+
+def number_text(value: Any, fmt: str = "{:,.0f}") -> str:
+    return "n/a" if value is None or pd.isna(value) else fmt.format(float(value))
+
+
+def units_csv(run) -> bytes:
+    from core.export import table_to_csv_bytes
+
+    return table_to_csv_bytes(run.units)
+
+
+def safe_name(text_: str) -> str:
+    return "".join(ch if ch.isalnum() or ch in "-_" else "_" for ch in str(text_))[:60] or "well"
+
+
+# ---- settings form -----------------------------------------------------------------------------
+def _default_limit() -> float:
+    try:
+        from core.run import DEFAULT_ECON_LIMIT_BOPD
+
+        return float(DEFAULT_ECON_LIMIT_BOPD)
+    except ImportError:
+        return 1.0
+
+
+DEFAULT_LIMIT = _default_limit()
+
+
+def settings_from_form(*, mode: str, econ_limit_bopd: float, oil_price: float, gas_price: float,
+                       opex_per_month: float, nri: float, wi: float, severance_tax: float, b_max: float,
+                       terminal_decline_pct: float, horizon_years: float, as_of: str, units: str) -> dict[str, Any]:
+    """RunSettings fields from the Settings page's form (terminal decline given in %/yr)."""
+    by_rate = mode == "an oil rate"
+    return {
+        "econ_limit_bopd": float(econ_limit_bopd) if by_rate else None,
+        "oil_price": None if by_rate else float(oil_price),
+        "gas_price": None if by_rate or not gas_price else float(gas_price),
+        "opex_per_month": None if by_rate else float(opex_per_month),
+        "nri": None if by_rate else float(nri),
+        "wi": float(wi),
+        "severance_tax": float(severance_tax),
+        "b_max": float(b_max),
+        "terminal_decline": float(terminal_decline_pct) / 100.0,
+        "horizon_years": float(horizon_years),
+        "as_of": as_of.strip() or None,
+        "units": units,
+    }
+
+
+def settings_note() -> str:
+    return (
+        "What a change re-runs: the input units re-read the file; every other setting re-runs the "
+        "forecast from the loaded table (the file is not read again). Earlier combinations stay "
+        "cached, so switching back is instant."
+    )
+
+
+ABOUT_TEXT = """
+**What it does.** From monthly production per well (oil, gas, water, days on) and sparse
+pressure surveys, Depletion Desk fits Arps declines to each well and forecasts it to the
+economic limit (EUR, remaining, economic-limit month); tells where each well and reservoir
+unit stands in the four stages of solution-gas-drive depletion from its producing GOR and
+pressure; flags wells and units for waterflood (pressure maintenance) planning; and exports
+the forecast tables.
+
+**Methods and sources.**
+
+* Decline: Arps exponential, hyperbolic and harmonic declines, with a terminal decline
+  (modified hyperbolic) in the forecast. J. J. Arps, "Analysis of Decline Curves", Trans.
+  AIME 160, 228-247 (1945). Nominal and effective declines as in SPEE Recommended Evaluation
+  Practice 6.
+* Economic limit from prices and costs: the rate at which net revenue equals operating cost
+  (standard formula; see the README).
+* Depletion stages of a solution-gas drive (above the bubble point; gas immobile with the
+  GOR below Rsi; free gas flowing with the GOR rising; after the GOR peak). Standard
+  reservoir-engineering texts, e.g. L. P. Dake, *Fundamentals of Reservoir Engineering*
+  (1978), ch. 3; B. C. Craft and M. F. Hawkins, *Applied Petroleum Reservoir Engineering*.
+* Fluid typing: W. D. McCain Jr., "Heavy Components Control Reservoir Fluid Behavior",
+  JPT (1994), from initial GOR and stock-tank gravity.
+* Black-oil properties: Standing (1947), Vasquez and Beggs (1980), Beggs and Robinson (1975);
+  gas z-factor by Hall-Yarborough and Dranchuk-Abou-Kassem.
+* Material balance for the expected GOR and pressure path: Tarner (1944) and Muskat (1945)
+  with Corey relative permeabilities.
+
+**Colours.** Charts use the Okabe-Ito colour-universal-design set (Okabe and Ito, 2008),
+mapped by us: oil black, gas orange, water reddish purple, fit vermillion dashed, forecast
+blue dotted, stages sky blue / yellow / orange / reddish purple.
+
+**Data.** Everything runs on this machine; the app listens on 127.0.0.1 and has no login of
+its own. Put it behind your organisation's access control before sharing it.
+"""
