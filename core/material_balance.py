@@ -128,20 +128,29 @@ class PvtTable:
         api: float,
         gamma_g: float,
         t_f: float,
-        pb_psia: float,
         p_max_psia: float,
+        pb_psia: float | None = None,
+        rsb_scf_stb: float | None = None,
         p_min_psia: float = 14.7,
         n_points: int = 241,
         method: str = "standing",
     ) -> "PvtTable":
         """Tabulate ``core.pvt.black_oil_table`` between ``p_min_psia`` and ``p_max_psia``.
 
-        The grid holds ``pb_psia`` exactly. See :mod:`core.pvt` for the correlations.
+        Give ``pb_psia`` or ``rsb_scf_stb`` (the other follows from the correlation). The
+        grid holds the bubble point exactly. See :mod:`core.pvt` for the correlations.
         """
         from core.pvt import black_oil_table  # imported here: core.pvt is a sibling module
 
+        if (pb_psia is None) == (rsb_scf_stb is None):
+            raise ValueError("give exactly one of pb_psia and rsb_scf_stb")
+        if pb_psia is None:
+            probe = black_oil_table(np.array([p_max_psia]), api=api, gamma_g=gamma_g, t_f=t_f,
+                                    rsb_scf_stb=rsb_scf_stb, method=method)
+            pb_psia = float(probe.attrs["pb_psia"])
         check_range("p_min_psia", p_min_psia, 0.0, pb_psia, lo_open=True, unit="psia")
         check_range("p_max_psia", p_max_psia, pb_psia, None, unit="psia")
+        n_points = int(check_range("n_points", n_points, 10, 100000))
         n_below = max(int(n_points * 0.85), 10)
         grid = np.linspace(p_min_psia, pb_psia, n_below)
         if p_max_psia > pb_psia:
@@ -534,11 +543,23 @@ def predict_depletion(
     with np.errstate(invalid="ignore", divide="ignore"):
         mob_l = ((mu_o * bo) / (mu_g * bg)).tolist()
 
+    # Corey (1954) constants for the scalar inner loop (same formula as core.relperm)
+    c_swc, c_sgc, c_sorg = relperm.swc, relperm.sgc, relperm.sorg
+    c_den_o = 1.0 - c_swc - c_sorg
+    c_den_g = 1.0 - c_swc - c_sgc - c_sorg
+    c_krg, c_kro, c_ng, c_no = relperm.krg_max, relperm.kro_max, relperm.ng, relperm.no
+    so_factor = (1.0 - swi) / boi
+
     def gor_at(j: int, rj: float) -> float:
-        so = (1.0 - swi) * (1.0 - rj) * bo_l[j] / boi / v_l[j]
-        sg = min(max(1.0 - so - w_l[j] / v_l[j], 0.0), 1.0)
-        krg, kro = relperm.fast(sg)
-        return rs_l[j] + krg / max(kro, _KRO_FLOOR) * mob_l[j]
+        so = so_factor * (1.0 - rj) * bo_l[j] / v_l[j]
+        sg = 1.0 - so - w_l[j] / v_l[j]
+        sg_n = (sg - c_sgc) / c_den_g
+        if sg_n <= 0.0:
+            return rs_l[j]
+        so_n = (1.0 - c_swc - sg - c_sorg) / c_den_o
+        kro = c_kro * so_n**c_no if so_n > 0.0 else 0.0
+        krg = c_krg * (sg_n if sg_n < 1.0 else 1.0) ** c_ng
+        return rs_l[j] + krg / (kro if kro > _KRO_FLOOR else _KRO_FLOOR) * mob_l[j]
 
     if method == "tarner":
         r_j, gp_j = r[i_b], gp[i_b]
