@@ -161,3 +161,38 @@ def test_bad_arguments_raise(kw):
 def test_fluid_rejects_pi_below_pb():
     with pytest.raises(ValueError, match="pi_psia"):
         FluidRock(pb_psia=3000.0, pi_psia=2500.0)
+
+
+def _load_generator():
+    import importlib.util
+    from pathlib import Path
+
+    path = Path(__file__).resolve().parents[1] / "sample_wells" / "generate.py"
+    spec = importlib.util.spec_from_file_location("sample_generate", path)
+    mod = importlib.util.module_from_spec(spec)
+    spec.loader.exec_module(mod)
+    return mod
+
+
+def test_sample_generator_is_deterministic_and_files_are_current(tmp_path):
+    # Regenerating gives identical tables; the committed CSV files equal a fresh run
+    # (regression against our own generator: if this fails, run python sample_wells/generate.py).
+    gen = _load_generator()
+    p1, h1, t1 = gen.build_with_truth()
+    p2, h2 = gen.build()
+    pd.testing.assert_frame_equal(p1, p2)
+    pd.testing.assert_frame_equal(h1, h2)
+    p1.to_csv(tmp_path / "production.csv", index=False, lineterminator="\n")
+    h1.to_csv(tmp_path / "well_header.csv", index=False, lineterminator="\n")
+    for name in ("production.csv", "well_header.csv"):
+        committed = (gen.OUT_DIR / name).read_bytes()
+        assert (tmp_path / name).read_bytes() == committed, f"{name} is stale: run python sample_wells/generate.py"
+    # the scenario as laid out: 40-50 oil wells in 4 units, 3 non-oil wells, 2-20 years ending 2026-10
+    oil = t1[t1["fluid"] == "black_oil"]
+    assert 40 <= len(oil) <= 50 and oil["unit"].nunique() == 4
+    assert set(t1.loc[t1["fluid"] != "black_oil", "fluid"]) == {"gas_condensate", "wet_gas"}
+    months = pd.to_datetime(p1["Month"])
+    assert months.max() == pd.Timestamp("2026-10-01")
+    span = p1.assign(m=months).groupby("Well")["m"].agg(["min", "max", "size"])
+    assert span["size"].between(24, 240).all()
+    assert set(oil["final_stage"]) == {1, 2, 3, 4}
