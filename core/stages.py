@@ -1,0 +1,1355 @@
+"""Solution-gas-drive stage tracker and waterflood planning status.
+
+Where each well and each reservoir unit stands in the four stages of solution-gas-drive
+depletion, read from the monthly producing GOR and whatever pressure surveys exist:
+
+1. p above the bubble point: producing GOR flat at Rsi.
+2. p below the bubble point, gas saturation under critical: released gas is immobile and
+   the producing GOR (= Rs(p)) dips below Rsi; the stage ends when the GOR climbs back
+   above Rsi.
+3. gas saturation above critical: free gas flows, GOR rises to a maximum; ends at the peak.
+4. after the GOR peak: GOR falls, rates decline to the economic limit.
+
+Stage description: Tarner (1944), Muskat (1945), as presented in T. Ahmed, *Reservoir
+Engineering Handbook*, chapter on oil-reservoir performance prediction (see
+check-values 5.3).
+
+Method (all series are treated alike: a well, or a unit built from summed volumes):
+
+* Producing months only: oil > 0, gas > 0 and known, days on > 0 and uptime
+  (days_on / days_in_month) >= ``MIN_UPTIME``. Shut-ins, gaps and low-uptime months are
+  dropped, so the time axis is *producing months*; they cannot create a stage change.
+* Work on ln(GOR): field GOR noise is multiplicative. Smoothing: running median
+  (``scipy.ndimage.median_filter``, removes isolated spikes such as a workover month)
+  followed by a Savitzky-Golay filter (``scipy.signal.savgol_filter``, quadratic, keeps the
+  position and height of a peak better than a moving mean).
+* Noise level sigma: robust (MAD) scale of the second differences of ln(GOR) divided by
+  sqrt(6) (unaffected by a linear trend).
+* Bubble-point crossing from GOR: least-squares "hinge" fit (flat, then a straight decline)
+  of ln(GOR) over the months before the GOR minimum; the hinge month is the crossing.
+  All hinge positions of all series are scored at once from cumulative sums.
+* Pressure surveys, when a bubble point is known, override the GOR estimate (rule in
+  :func:`crossing_from_surveys`).
+* Stage 2 ends at the first producing month from which the smoothed GOR stays above Rsi
+  on its way to a confirmed rise (smoothed GOR above Rsi x exp(``RISE_MIN_LOG``) for
+  ``RISE_HOLD_MONTHS`` months).
+* GOR peak: the maximum of the smoothed GOR after stage 2 ends, *confirmed* only when at
+  least ``PEAK_HOLD_MONTHS`` producing months follow it and in each of the last
+  ``PEAK_HOLD_MONTHS`` months the smoothed GOR lies below the peak by more than
+  ``PEAK_DROP_K`` x the smoothed-noise level (and at least ``PEAK_DROP_MIN_LOG``).
+
+Everything is vectorised over series: the producing months are packed into a
+(series x month) matrix and every step is a numpy/scipy operation on the whole matrix.
+"""
+
+from __future__ import annotations
+
+import functools
+import math
+from dataclasses import dataclass
+
+import numpy as np
+import pandas as pd
+from scipy.ndimage import median_filter
+from scipy.signal import savgol_filter
+
+from core.validation import InputError
+
+__all__ = [
+    "OIL_FLUID_TYPES",
+    "PLANNING_RULES",
+    "PLANNING_STATUSES",
+    "crossing_from_surveys",
+    "planning_status",
+    "track_units",
+    "unit_monthly",
+    "track_wells",
+]
+
+# ----------------------------------------------------------------------------------------
+# Constants (tuned on synthetic wells, see scripts/stage_accuracy.py; common practice)
+# ----------------------------------------------------------------------------------------
+#: Fluid types the four-stage picture applies to (McCain's oils plus heavy oil).
+OIL_FLUID_TYPES = ("black_oil", "volatile_oil", "heavy_oil")
+#: Fluid types that are recognised but never forced into four stages.
+NOT_OIL_FLUID_TYPES = ("gas_condensate", "wet_gas", "dry_gas", "bitumen")
+#: Fewer producing months with a GOR than this: "too little history".
+MIN_GOR_MONTHS = 6
+#: Months with uptime (days_on / days_in_month) below this are left out of the GOR series.
+MIN_UPTIME = 0.3
+#: An early GOR plateau this long (producing months) gives Rsi directly.
+MIN_PLATEAU_MONTHS = 6
+#: Running-median window (months) and Savitzky-Golay windows by noise level.
+MEDIAN_WINDOW = 5
+SAVGOL_WINDOW_LOW_NOISE = 9
+SAVGOL_WINDOW_HIGH_NOISE = 13
+#: Noise (sigma of ln GOR) above which the long Savitzky-Golay window is used.
+HIGH_NOISE_SIGMA = 0.09
+#: Ratio of the smoothed-series noise to the raw noise for the median 5 + SG filter,
+#: measured by Monte Carlo on white noise (own measurement, see readme).
+SMOOTH_NOISE_FACTOR = {SAVGOL_WINDOW_LOW_NOISE: 0.42, SAVGOL_WINDOW_HIGH_NOISE: 0.35}
+#: Default noise when a series is too short to measure it.
+DEFAULT_SIGMA = 0.10
+#: Dip (stage 2) significance: hinge slope t-statistic and minimum fitted drop in ln GOR.
+DIP_T_MIN = 5.0
+DIP_DROP_MIN_LOG = 0.03
+DIP_DROP_K = 2.0
+#: Rise (stage 3) confirmation: smoothed ln GOR above ln Rsi by this much (and K sigma) ...
+RISE_MIN_LOG = math.log(1.15)
+RISE_K = 4.0
+#: ... for this many consecutive producing months.
+RISE_HOLD_MONTHS = 3
+#: GOR peak confirmation (see module docstring).
+PEAK_HOLD_MONTHS = 4
+PEAK_DROP_K = 3.0
+PEAK_DROP_MIN_LOG = math.log(1.05)
+#: Peak must stand this far above Rsi to be a stage-3 peak at all.
+PEAK_MIN_ABOVE_RSI_LOG = math.log(1.25)
+#: Surveys below Pb used for the back-extrapolated trend when only one point lies above.
+BELOW_TREND_POINTS = 3
+#: Analogue wells needed to estimate months to the GOR peak.
+MIN_ANALOGUES = 3
+
+PLANNING_STATUSES = ("window_ahead", "window_open", "window_closing", "window_passed", "not_applicable")
+
+#: Rule text per planning status (sources: check-values section 8).
+PLANNING_RULES = {
+    "window_ahead": (
+        "Stage 1, pressure above the bubble point: no free gas yet; plan the pressure-"
+        "maintenance project now so it can start near the bubble point. Event: first "
+        "production. [common practice]"
+    ),
+    "window_open": (
+        "Stage 2, below the bubble point with free gas still immobile (GOR below Rsi): "
+        "a small free-gas saturation at flood start can lower residual oil (Holmgren & "
+        "Morse 1951, Trans. AIME 192) and combined recovery peaks at a gas saturation "
+        "above zero (Land & Carlson, USBM RI 7911); fill-up volume is still small (Craig "
+        "1971, SPE Monograph 3, from memory). Event: bubble-point crossing."
+    ),
+    "window_closing": (
+        "Stage 3, free gas flowing and GOR rising to its peak: reservoir gas energy is "
+        "being produced, fill-up volume and oil viscosity grow, so the flood response "
+        "comes later and smaller the longer it waits (Craig 1971, SPE Monograph 3, from "
+        "memory; the closing of the window past critical gas saturation is common "
+        "practice). Event: GOR back above Rsi (end of stage 2)."
+    ),
+    "window_passed": (
+        "Stage 4, after the GOR peak: gas energy largely spent, large fill-up volume, "
+        "gas-stripped viscous oil; a flood now is late (Craig 1971, SPE Monograph 3, "
+        "from memory; common practice). Event: GOR peak."
+    ),
+    "not_applicable": "No solution-gas-drive stage (see stage_reason).",
+}
+_STAGE_TO_STATUS = {1: "window_ahead", 2: "window_open", 3: "window_closing", 4: "window_passed"}
+
+_EPOCH_MONTH = 1970 * 12
+
+WELL_COLUMNS = [
+    "well_id", "stage", "stage_reason", "stage_confidence", "rsi_scf_stb", "bubble_point_psia",
+    "bubble_point_date", "stage2_end_date", "gor_peak_date", "gor_peak_scf_stb",
+    "passed_gor_peak", "planning_status", "planning_rule", "months_since_event",
+    "months_to_gor_peak_est", "regime_start", "stage_evidence",
+]
+
+
+# ----------------------------------------------------------------------------------------
+# Small helpers
+# ----------------------------------------------------------------------------------------
+def _month_index(months: pd.Series) -> np.ndarray:
+    m = pd.to_datetime(months)
+    return (m.dt.year.to_numpy() * 12 + m.dt.month.to_numpy() - 1).astype(np.int64)
+
+
+def _index_to_month(mi: np.ndarray) -> np.ndarray:
+    """Integer month index (year*12 + month-1, may be float NaN) to datetime64[ns]."""
+    mi = np.asarray(mi, dtype=float)
+    out = np.full(mi.shape, np.datetime64("NaT"), dtype="datetime64[ns]")
+    ok = np.isfinite(mi)
+    out[ok] = (mi[ok].astype(np.int64) - _EPOCH_MONTH).astype("datetime64[M]").astype("datetime64[ns]")
+    return out
+
+
+def _fmt_month(mi: float) -> str:
+    if not np.isfinite(mi):
+        return "n/a"
+    mi = int(mi)
+    return f"{mi // 12:04d}-{mi % 12 + 1:02d}"
+
+
+def _ffill_rows(a: np.ndarray, valid: np.ndarray) -> np.ndarray:
+    """Forward-fill along axis 1 where ``valid`` is False (rows are left-aligned)."""
+    idx = np.where(valid, np.arange(a.shape[1])[None, :], 0)
+    np.maximum.accumulate(idx, axis=1, out=idx)
+    return a[np.arange(a.shape[0])[:, None], idx]
+
+
+def _run_length_forward(b: np.ndarray) -> np.ndarray:
+    """Number of consecutive True values starting at each position (along axis 1)."""
+    out = np.zeros(b.shape, dtype=np.int32)
+    run = np.zeros(b.shape[0], dtype=np.int32)
+    for j in range(b.shape[1] - 1, -1, -1):
+        run = np.where(b[:, j], run + 1, 0)
+        out[:, j] = run
+    return out
+
+
+def _first_true(b: np.ndarray) -> np.ndarray:
+    """Index of the first True along axis 1, -1 when none."""
+    has = b.any(axis=1)
+    return np.where(has, b.argmax(axis=1), -1)
+
+
+def _standing_bubble_point(rsi, gamma_g, api, t_f):
+    """Bubble point from Rsi via core.pvt (Standing 1947) when available; NaN otherwise."""
+    try:
+        from core import pvt  # noqa: PLC0415  (optional dependency inside the project)
+    except ImportError:
+        return np.full(np.shape(rsi), np.nan)
+    f = getattr(pvt, "bubble_point_standing", None)
+    if f is None:
+        return np.full(np.shape(rsi), np.nan)
+    rsi = np.asarray(rsi, float)
+    out = np.full(rsi.shape, np.nan)
+    ok = np.isfinite(rsi) & np.isfinite(gamma_g) & np.isfinite(api) & np.isfinite(t_f) & (rsi > 0)
+    if ok.any():
+        import warnings  # noqa: PLC0415
+
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            try:
+                out[ok] = np.asarray(f(rsi[ok], api=api[ok], gamma_g=gamma_g[ok], t_f=t_f[ok]), float)
+            except (TypeError, ValueError):
+                out[ok] = np.nan
+    return out
+
+
+def _standing_rs(p, gamma_g, api, t_f):
+    """Solution GOR at ``p`` via core.pvt.rs_standing (Standing 1947); NaN when unavailable."""
+    try:
+        from core import pvt  # noqa: PLC0415
+    except ImportError:
+        return np.full(np.shape(p), np.nan)
+    f = getattr(pvt, "rs_standing", None)
+    if f is None:
+        return np.full(np.shape(p), np.nan)
+    p = np.asarray(p, float)
+    out = np.full(p.shape, np.nan)
+    ok = np.isfinite(p) & np.isfinite(gamma_g) & np.isfinite(api) & np.isfinite(t_f) & (p > 0)
+    if ok.any():
+        import warnings  # noqa: PLC0415
+
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            try:
+                out[ok] = np.asarray(f(p[ok], api=api[ok], gamma_g=gamma_g[ok], t_f=t_f[ok]), float)
+            except (TypeError, ValueError):
+                out[ok] = np.nan
+    return out
+
+
+# ----------------------------------------------------------------------------------------
+# Pressure surveys
+# ----------------------------------------------------------------------------------------
+def crossing_from_surveys(
+    surveys: pd.DataFrame,
+    bubble_point_psia: pd.Series,
+    initial_pressure_psia: pd.Series | None = None,
+) -> pd.DataFrame:
+    """Depletion at which each series crosses its bubble point, from pressure surveys.
+
+    Parameters
+    ----------
+    surveys : DataFrame
+        Columns ``sid`` (series id), ``x`` (depletion at the survey: cumulative oil at the
+        middle of the survey month [bbl]; any increasing depletion measure works, e.g. time
+        when volumes are unknown) and ``p`` (survey pressure [psia]).
+    bubble_point_psia : Series
+        Bubble point per ``sid``. [psia]
+    initial_pressure_psia : Series, optional
+        Initial pressure per ``sid`` (a survey at ``x = 0``), NaN where unknown. [psia]
+
+    Returns
+    -------
+    DataFrame indexed by ``sid``: ``x_cross`` (NaN when the surveys do not place it),
+    ``cross_rule`` (text), ``x_last_above`` (last survey above Pb before any survey below
+    it), ``x_first_below``, ``n_above`` (points used for the trend).
+
+    Notes
+    -----
+    Above the bubble point a volumetric reservoir depletes along
+    Np/N = Boi ce (pi - p) / Bo (check-values 5.1, Ahmed's handbook), so pressure is close
+    to linear in cumulative oil, whatever the rate history (shut-ins and workovers do not
+    bend it). Rules, in order:
+
+    1. Trend: the points above Pb before the first survey below it (and the initial
+       pressure at x = 0 when given) are fitted by least squares, p = a + b x (two or more
+       points, b < 0); x* solves a + b x* = Pb.
+       - a survey below Pb exists: x* is clipped into [last above, first below];
+       - no survey below Pb: forward extrapolation is accepted only over at most the span
+         of the fitted points (x* <= x_last + (x_last - x_first)); the caller also checks
+         that x* has been produced (common practice: never extrapolate further than the
+         data reach).
+    2. One point above Pb and two or more below: the least-squares trend of the first
+       ``BELOW_TREND_POINTS`` surveys below Pb is extrapolated back to Pb and clipped into
+       the bracket (pressure falls far more slowly per barrel below Pb, so a straight line
+       across the bracket would date the crossing late).
+    3. One point above and one below: linear interpolation in x between them.
+    4. First survey already below Pb and no point above: only an upper bound
+       (``x_first_below``); ``x_cross`` stays NaN.
+    """
+    cols = ["x_cross", "cross_rule", "x_last_above", "x_first_below", "n_above"]
+    s = surveys[["sid", "x", "p"]].copy()
+    s["pb"] = s["sid"].map(bubble_point_psia)
+    if initial_pressure_psia is not None:
+        ini = pd.DataFrame({"sid": initial_pressure_psia.index, "x": 0.0,
+                            "p": initial_pressure_psia.to_numpy(float)})
+        ini["pb"] = ini["sid"].map(bubble_point_psia)
+        ini = ini[np.isfinite(ini["p"].to_numpy(float)) & (ini["p"] > ini["pb"])]
+        ini = ini[ini["sid"].isin(s["sid"])]
+        s = pd.concat([ini, s], ignore_index=True)
+    ok = np.isfinite(s["pb"].to_numpy(float)) & np.isfinite(s["p"].to_numpy(float)) & np.isfinite(
+        s["x"].to_numpy(float))
+    s = s[ok].sort_values(["sid", "x"], kind="stable").reset_index(drop=True)
+    sids = pd.Index(pd.unique(s["sid"]), name="sid")
+    res = pd.DataFrame({"x_cross": np.nan, "cross_rule": "", "x_last_above": np.nan,
+                        "x_first_below": np.nan, "n_above": 0}, index=sids)[cols]
+    if s.empty:
+        return res
+    sid = s["sid"].to_numpy()
+    x, p, pb = s["x"].to_numpy(float), s["p"].to_numpy(float), s["pb"].to_numpy(float)
+    above = p > pb
+    below_count = pd.Series(~above).groupby(sid).cumsum().to_numpy()
+    use = above & (below_count == 0)
+    first_below = (~above) & (below_count == 1)
+    g = pd.DataFrame({"sid": sid, "use": use, "x": np.where(use, x, np.nan), "p": np.where(use, p, np.nan)})
+    g["xx"], g["xp"] = g["x"] ** 2, g["x"] * g["p"]
+    agg = g.groupby("sid", sort=False).agg(n=("use", "sum"), sx=("x", "sum"), sp=("p", "sum"),
+                                          sxx=("xx", "sum"), sxp=("xp", "sum"),
+                                          xmin=("x", "min"), xmax=("x", "max")).reindex(sids)
+    fb = pd.Series(x[first_below], index=sid[first_below]).reindex(sids).to_numpy(float)
+    pfb = pd.Series(p[first_below], index=sid[first_below]).reindex(sids).to_numpy(float)
+    pbs = bubble_point_psia.reindex(sids).to_numpy(float)
+    n = agg["n"].to_numpy(float)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        den = n * agg["sxx"].to_numpy() - agg["sx"].to_numpy() ** 2
+        b = (n * agg["sxp"].to_numpy() - agg["sx"].to_numpy() * agg["sp"].to_numpy()) / den
+        a = (agg["sp"].to_numpy() - b * agg["sx"].to_numpy()) / n
+        x_tr = (pbs - a) / b
+    xla, xfirst = agg["xmax"].to_numpy(float), agg["xmin"].to_numpy(float)
+    # the pressure of the last point above, for rule 2
+    pla = pd.Series(np.where(use, p, np.nan)).groupby(sid).last().reindex(sids).to_numpy(float)
+    trend_ok = (n >= 2) & (den > 0) & (b < 0) & np.isfinite(x_tr)
+    x_cross = np.full(len(sids), np.nan)
+    rule = np.full(len(sids), "", dtype=object)
+    br = trend_ok & np.isfinite(fb)
+    x_cross[br] = np.clip(x_tr[br], xla[br], fb[br])
+    rule[br] = (f"pressure surveys: least-squares trend of the {'{n}'} points above Pb (p linear in "
+                "cumulative oil), clipped into the bracket of the first survey below Pb")
+    fw = trend_ok & ~np.isfinite(fb) & (x_tr <= xla + (xla - xfirst))
+    x_cross[fw] = x_tr[fw]
+    rule[fw] = ("pressure surveys: least-squares trend of the {n} points above Pb, extrapolated "
+                "forward by at most the span of the fitted points")
+    # below-Pb trend of the first surveys below (up to BELOW_TREND_POINTS), back to Pb
+    bel = (~above) & (below_count <= BELOW_TREND_POINTS)
+    h = pd.DataFrame({"x": np.where(bel, x, np.nan), "p": np.where(bel, p, np.nan)})
+    h["xx"], h["xp"], h["n"] = h["x"] ** 2, h["x"] * h["p"], bel.astype(float)
+    hb = h.groupby(sid, sort=False).sum(min_count=1).reindex(sids)
+    nb = hb["n"].fillna(0).to_numpy(float)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        denb = nb * hb["xx"].to_numpy(float) - hb["x"].to_numpy(float) ** 2
+        bb = (nb * hb["xp"].to_numpy(float) - hb["x"].to_numpy(float) * hb["p"].to_numpy(float)) / denb
+        ab = (hb["p"].to_numpy(float) - bb * hb["x"].to_numpy(float)) / nb
+        x_bt = (pbs - ab) / bb
+    back = ~trend_ok & (n >= 1) & np.isfinite(fb) & (nb >= 2) & (denb > 0) & (bb < 0) & np.isfinite(x_bt)
+    x_cross[back] = np.clip(x_bt[back], xla[back], fb[back])
+    rule[back] = ("pressure surveys: trend of the first surveys below Pb extrapolated back to Pb, "
+                  "clipped into the bracket of the last survey above")
+    lin = ~trend_ok & ~back & (n >= 1) & np.isfinite(fb)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        x_lin = xla + (pla - pbs) / (pla - pfb) * (fb - xla)
+    x_cross[lin] = x_lin[lin]
+    rule[lin] = "pressure surveys: linear interpolation in cumulative oil between the last survey above Pb and the first below"
+    res["x_cross"] = x_cross
+    res["cross_rule"] = [r.replace("{n}", str(int(k))) for r, k in zip(rule, n)]
+    res["x_last_above"] = xla
+    res["x_first_below"] = fb
+    res["n_above"] = n.astype(int)
+    return res
+
+
+# ----------------------------------------------------------------------------------------
+# The series engine
+# ----------------------------------------------------------------------------------------
+@dataclass(frozen=True)
+class _SeriesInput:
+    """Long table of producing months plus per-series attributes (internal)."""
+
+    months: pd.DataFrame  # sid, mi, z (ln GOR)
+    surveys: pd.DataFrame  # sid, mi, p
+    attrs: pd.DataFrame  # index sid: pb_given, api, gamma_g, t_f, pi, first_mi, last_mi, applicable, reason
+
+
+def _prepare(production: pd.DataFrame, sid_col: str) -> tuple[pd.DataFrame, pd.DataFrame, pd.DataFrame]:
+    """Producing-month ln GOR table, survey table and per-series counts."""
+    prod = production
+    mi = _month_index(prod["month"])
+    oil = pd.to_numeric(prod["oil_bbl"], errors="coerce").to_numpy(float) if "oil_bbl" in prod else np.full(len(prod), np.nan)
+    gas = (pd.to_numeric(prod["gas_mcf"], errors="coerce").to_numpy(float)
+           if "gas_mcf" in prod else np.full(len(prod), np.nan))
+    if "days_in_month" in prod:
+        dim = pd.to_numeric(prod["days_in_month"], errors="coerce").to_numpy(float)
+    else:
+        dim = pd.to_datetime(prod["month"]).dt.days_in_month.to_numpy(float)
+    days = (pd.to_numeric(prod["days_on"], errors="coerce").to_numpy(float)
+            if "days_on" in prod else dim.copy())
+    days = np.where(np.isfinite(days), days, dim)
+    sid = prod[sid_col].to_numpy()
+    with np.errstate(divide="ignore", invalid="ignore"):
+        uptime = days / dim
+        gor = 1000.0 * gas / oil
+    good = (oil > 0) & np.isfinite(gas) & (gas > 0) & (days > 0) & (uptime >= MIN_UPTIME) & np.isfinite(gor)
+    months = pd.DataFrame({"sid": sid[good], "mi": mi[good], "z": np.log(gor[good])})
+    months = months.sort_values(["sid", "mi"], kind="stable")
+    # several rows of one series in one month (unit tables are pre-summed; wells are unique)
+    months = months.groupby(["sid", "mi"], sort=True, as_index=False)["z"].mean()
+    # cumulative oil per series and month (all rows: shut-ins add nothing)
+    oil0 = np.where(np.isfinite(oil) & (oil > 0), oil, 0.0)
+    cum = pd.DataFrame({"sid": sid, "mi": mi, "oil": oil0}).groupby(["sid", "mi"], sort=True, as_index=False)["oil"].sum()
+    cum["cum_end"] = cum.groupby("sid", sort=False)["oil"].cumsum()
+    cum["x_mid"] = cum["cum_end"] - 0.5 * cum["oil"]
+    if "pressure_psia" in prod:
+        p = pd.to_numeric(prod["pressure_psia"], errors="coerce").to_numpy(float)
+        okp = np.isfinite(p) & (p > 0)
+        surveys = pd.DataFrame({"sid": sid[okp], "mi": mi[okp], "p": p[okp]})
+        surveys = surveys.groupby(["sid", "mi"], sort=True, as_index=False)["p"].median()
+    else:
+        surveys = pd.DataFrame({"sid": pd.Series([], dtype=object), "mi": pd.Series([], dtype=np.int64),
+                                "p": pd.Series([], dtype=float)})
+    surveys = surveys.merge(cum[["sid", "mi", "x_mid"]], on=["sid", "mi"], how="left").rename(columns={"x_mid": "x"})
+    info = pd.DataFrame({"sid": sid, "mi": mi, "gas_known": np.isfinite(gas)})
+    g = info.groupby("sid", sort=True)
+    counts = pd.DataFrame({
+        "first_mi": g["mi"].min(),
+        "last_mi": g["mi"].max(),
+        "gas_known": g["gas_known"].any(),
+    })
+    counts["n_gor"] = months.groupby("sid").size().reindex(counts.index).fillna(0).astype(int)
+    months = months.merge(cum[["sid", "mi", "cum_end", "oil"]], on=["sid", "mi"], how="left")
+    months["xs"] = months["cum_end"] - months["oil"]
+    months = months.rename(columns={"cum_end": "xe"}).drop(columns="oil")
+    return months, surveys, counts, cum[["sid", "mi", "cum_end"]]
+
+
+def _analyse(months: pd.DataFrame, surveys: pd.DataFrame, cumtab: pd.DataFrame, attrs: pd.DataFrame,
+             as_of: int, mb_fit: bool = True) -> pd.DataFrame:
+    """Stage analysis of every applicable series; returns one row per series in ``attrs``.
+
+    ``attrs`` index sid; columns pb_given, api, gamma_g, t_f, pi, first_mi, applicable.
+    """
+    res = pd.DataFrame(index=attrs.index)
+    for c in ("stage", "rsi", "pb", "bp_mi", "s2_mi", "pk_mi", "pk_gor", "sigma", "n_gor",
+              "plateau_n", "dip_t", "last_mi_gor", "n_surveys", "last_gor", "peak_cand_mi"):
+        res[c] = np.nan
+    res["passed"] = False
+    res["mb_ok"] = False
+    for c in ("rsi_src", "pb_src", "bp_src", "peak_note", "mb_note"):
+        res[c] = ""
+    app = attrs.index[attrs["applicable"].to_numpy(bool)]
+    m = months[months["sid"].isin(app)]
+    if m.empty:
+        return res
+    sids = pd.Index(pd.unique(m["sid"]))
+    code = sids.get_indexer(m["sid"])
+    pos = m.groupby("sid", sort=False).cumcount().to_numpy()
+    n_i = np.bincount(code, minlength=len(sids))
+    ns, L = len(sids), int(n_i.max())
+    Z = np.full((ns, L), np.nan)
+    MI = np.full((ns, L), np.nan)
+    Z[code, pos] = m["z"].to_numpy(float)
+    MI[code, pos] = m["mi"].to_numpy(float)
+    XS = np.full((ns, L), np.nan)
+    XE = np.full((ns, L), np.nan)
+    XS[code, pos] = m["xs"].to_numpy(float)
+    XE[code, pos] = m["xe"].to_numpy(float)
+    J = np.arange(L)[None, :]
+    V = J < n_i[:, None]
+    Zf = _ffill_rows(Z, V)
+
+    # noise: MAD of second differences / sqrt(6)
+    if L >= 3:
+        d2 = Z[:, 2:] - 2.0 * Z[:, 1:-1] + Z[:, :-2]
+        with np.errstate(all="ignore"):
+            import warnings  # noqa: PLC0415
+
+            with warnings.catch_warnings():
+                warnings.simplefilter("ignore", RuntimeWarning)
+                sigma = 1.4826 * np.nanmedian(np.abs(d2), axis=1) / math.sqrt(6.0)
+    else:
+        sigma = np.full(ns, np.nan)
+    sigma = np.where(np.isfinite(sigma) & (n_i >= 8), sigma, DEFAULT_SIGMA)
+    sigma = np.maximum(sigma, 0.005)
+
+    # smoothing: running median then Savitzky-Golay (quadratic); window by noise level
+    med = median_filter(Zf, size=(1, min(MEDIAN_WINDOW, L)), mode="nearest") if L >= 3 else Zf.copy()
+    S = med.copy()
+    hi = sigma > HIGH_NOISE_SIGMA
+    for w, rows in ((SAVGOL_WINDOW_LOW_NOISE, ~hi), (SAVGOL_WINDOW_HIGH_NOISE, hi)):
+        if not rows.any():
+            continue
+        ww = min(w, L if L % 2 == 1 else L - 1)
+        if ww >= 5:
+            S[rows] = savgol_filter(med[rows], ww, 2, axis=1, mode="nearest")
+    fac = np.where(hi, SMOOTH_NOISE_FACTOR[SAVGOL_WINDOW_HIGH_NOISE], SMOOTH_NOISE_FACTOR[SAVGOL_WINDOW_LOW_NOISE])
+    sig_s = sigma * fac
+    S = np.where(V, S, np.nan)
+
+    # initial Rsi guess: median of the first months
+    early = np.where(J < np.minimum(MIN_PLATEAU_MONTHS, n_i)[:, None], Z, np.nan)
+    r0 = np.nanmedian(early, axis=1)
+
+    def rise_index(r: np.ndarray) -> np.ndarray:
+        thr = r + np.maximum(RISE_MIN_LOG, RISE_K * sig_s)
+        b = (S > thr[:, None]) & V
+        run = _run_length_forward(b)
+        return _first_true((run >= RISE_HOLD_MONTHS) & V)
+
+    jr = rise_index(r0)
+    # dip window end: minimum of the smoothed GOR before the rise (or over the whole history)
+    Smask = np.where(V & ((jr[:, None] < 0) | (J <= jr[:, None])), S, np.inf)
+    E = np.argmin(Smask, axis=1)
+
+    # hinge fit on raw ln GOR over [0, E]: flat, then linear decline from index k
+    W = V & (J <= E[:, None])
+    Zw = np.where(W, Z, 0.0)
+    C = np.cumsum(Zw, axis=1)
+    C2 = np.cumsum(Zw * Zw, axis=1)
+    T1 = np.cumsum(Zw * J, axis=1)
+    rows = np.arange(ns)
+    Sy, Syy, T1E = C[rows, E], C2[rows, E], T1[rows, E]
+    nE = (E + 1).astype(float)
+    Cprev = np.concatenate([np.zeros((ns, 1)), C[:, :-1]], axis=1)
+    Tprev = np.concatenate([np.zeros((ns, 1)), T1[:, :-1]], axis=1)
+    k = J.astype(float)
+    mk = (E[:, None] - J + 1).astype(float)
+    Sx = mk * (mk - 1) / 2.0
+    Sxx = (mk - 1) * mk * (2 * mk - 1) / 6.0
+    Sxy = (T1E[:, None] - Tprev) - k * (Sy[:, None] - Cprev)
+    cov = Sxy - Sx * Sy[:, None] / nE[:, None]
+    var = Sxx - Sx * Sx / nE[:, None]
+    with np.errstate(divide="ignore", invalid="ignore"):
+        slope = cov / var
+        sse = (Syy - Sy * Sy / nE)[:, None] - cov * cov / var
+    okk = (mk >= 3) & (var > 0) & (slope < 0) & (J <= E[:, None])
+    sse = np.where(okk, sse, np.inf)
+    kbest = np.argmin(sse, axis=1)
+    has_h = np.isfinite(sse[rows, kbest]) & (E >= 4)
+    c_b = slope[rows, kbest]
+    with np.errstate(divide="ignore", invalid="ignore"):
+        s_res = np.sqrt(np.maximum(sse[rows, kbest], 0.0) / np.maximum(nE - 3.0, 1.0))
+        s_res = np.maximum(s_res, 0.5 * sigma)
+        t_dip = -c_b / (s_res / np.sqrt(var[rows, kbest]))
+    drop = -c_b * (E - kbest)
+    dip_sig = has_h & (t_dip > DIP_T_MIN) & (drop > np.maximum(DIP_DROP_MIN_LOG, DIP_DROP_K * sig_s))
+    # after a confirmed rise the dip is accepted on weaker evidence (the crossing is certain)
+    dip_use = dip_sig | (has_h & (jr >= 0) & (t_dip > 2.0))
+
+    plateau_end = np.where(dip_use, kbest, np.where(jr >= 0, jr, n_i))
+    plateau_end = np.maximum(plateau_end, 0)
+    pl = np.where(J < np.maximum(plateau_end, 1)[:, None], Z, np.nan)
+    import warnings  # noqa: PLC0415
+
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", RuntimeWarning)
+        rsi_gor = np.nanmedian(pl, axis=1)
+
+    a = attrs.reindex(sids)
+    rsi_pvt = _standing_rs(a["pb_given"].to_numpy(float), a["gamma_g"].to_numpy(float),
+                           a["api"].to_numpy(float), a["t_f"].to_numpy(float))
+    long_plateau = plateau_end >= MIN_PLATEAU_MONTHS
+    use_pvt = ~long_plateau & np.isfinite(rsi_pvt)
+    ln_rsi = np.where(use_pvt, np.log(np.where(use_pvt, rsi_pvt, 1.0)), rsi_gor)
+    rsi_src = np.where(
+        long_plateau,
+        [f"median GOR of the {int(x)}-month early plateau" for x in plateau_end],
+        np.where(use_pvt, "Standing (1947) Rs at the given bubble point (GOR plateau too short)",
+                 "median of the first producing months (short plateau, low confidence)"),
+    )
+
+    # bubble point pressure: given, else Standing from Rsi
+    pb = a["pb_given"].to_numpy(float)
+    pb_src = np.where(np.isfinite(pb), "given", "")
+    pb_corr = _standing_bubble_point(np.exp(ln_rsi), a["gamma_g"].to_numpy(float),
+                                     a["api"].to_numpy(float), a["t_f"].to_numpy(float))
+    use_corr = ~np.isfinite(pb) & np.isfinite(pb_corr)
+    pb = np.where(use_corr, pb_corr, pb)
+    pb_src = np.where(use_corr, "Standing (1947) correlation from Rsi, API, gas gravity, temperature", pb_src)
+
+    # second pass with the final Rsi
+    jr = rise_index(ln_rsi)
+    has_rise = jr >= 0
+    # stage 2 end: last month at or below Rsi before the rise, + 1 (back-dated crossing)
+    below = V & (S <= ln_rsi[:, None]) & (J < np.where(has_rise, jr, 0)[:, None])
+    last_below = np.where(below.any(axis=1), L - 1 - np.argmax(below[:, ::-1], axis=1), -1)
+    j2 = np.where(has_rise, np.maximum(last_below + 1, 0), -1)
+    j2 = np.where(has_rise, np.minimum(j2, jr), -1)
+
+    # GOR peak after stage 2 end
+    after2 = V & (J >= np.maximum(j2, 0)[:, None]) & has_rise[:, None]
+    Sp = np.where(after2, S, -np.inf)
+    jp = np.argmax(Sp, axis=1)
+    s_pk = S[rows, np.minimum(jp, L - 1)]
+    n_after = n_i - 1 - jp
+    drop_thr = np.maximum(PEAK_DROP_MIN_LOG, PEAK_DROP_K * sig_s)
+    lastm = V & (J >= (n_i - PEAK_HOLD_MONTHS)[:, None])
+    down = np.where(lastm, S < (s_pk - drop_thr)[:, None], True).all(axis=1)
+    peak_ok = (has_rise & (n_after >= PEAK_HOLD_MONTHS) & down
+               & (s_pk > ln_rsi + PEAK_MIN_ABOVE_RSI_LOG))
+    # refine the peak month: vertex of a quadratic through the smoothed values around it
+    jm, jpp = np.clip(jp - 1, 0, L - 1), np.clip(jp + 1, 0, L - 1)
+    y0, y1, y2 = S[rows, jm], S[rows, jp], S[rows, jpp]
+    den = y0 - 2 * y1 + y2
+    with np.errstate(divide="ignore", invalid="ignore"):
+        off = np.where((den < 0) & (jp > 0) & (jp < n_i - 1), 0.5 * (y0 - y2) / den, 0.0)
+    off = np.clip(np.nan_to_num(off), -0.5, 0.5)
+    mi_at = lambda j: MI[rows, np.clip(j, 0, L - 1)]  # noqa: E731
+    pk_mi = np.where(peak_ok, np.round(mi_at(jp) + off), np.nan)
+
+    # bubble point from GOR: the hinge month
+    bp_gor = np.where(dip_use, mi_at(kbest), np.nan)
+    # a well that shows a rise but no usable hinge: crossing before the stage-2 end, unknown
+    bp_mi = bp_gor.copy()
+    bp_src = np.where(dip_use, np.where(dip_sig, "GOR leaves its plateau downward (hinge fit)",
+                                        "GOR hinge fit (weak dip, crossing implied by the GOR rise)"), "")
+    bp_src = bp_src.astype(object)
+
+    # material-balance shape fit where the PVT header is complete
+    mb_ok = np.zeros(ns, bool)
+    mb_stage = np.full(ns, np.nan)
+    mb = None
+    hdr = np.column_stack([a["api"].to_numpy(float), a["gamma_g"].to_numpy(float), a["t_f"].to_numpy(float),
+                           pb, a["pi"].to_numpy(float)])
+    hdr_ok = np.isfinite(hdr).all(axis=1) & (n_i >= MIN_GOR_MONTHS)
+    if mb_fit and hdr_ok.any():
+        cum_now = cumtab.groupby("sid")["cum_end"].max().reindex(sids).to_numpy(float)
+        hdr_ok &= np.isfinite(cum_now) & (cum_now > 0)
+        # blocks of consecutive producing months (block GOR = summed gas / summed oil)
+        k_i = np.maximum(np.ceil(n_i / MB_MAX_BLOCKS), 1).astype(int)
+        blk = (J // k_i[:, None])
+        oil_m = np.where(V, XE - XS, 0.0)
+        gas_m = oil_m * np.exp(np.where(V, Z, 0.0))
+        nb = MB_MAX_BLOCKS
+        Bo = np.zeros((ns, nb)); Bg = np.zeros((ns, nb)); Bn = np.zeros((ns, nb))
+        Bs = np.full((ns, nb), np.inf); Be = np.full((ns, nb), -np.inf)
+        rr = np.broadcast_to(rows[:, None], V.shape)[V]
+        bb = blk[V]
+        np.add.at(Bo, (rr, bb), oil_m[V]); np.add.at(Bg, (rr, bb), gas_m[V]); np.add.at(Bn, (rr, bb), 1.0)
+        np.minimum.at(Bs, (rr, bb), XS[V]); np.maximum.at(Be, (rr, bb), XE[V])
+        BV = (Bn > 0) & (Bo > 0)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            BZ = np.where(BV, np.log(Bg / Bo), np.nan)
+            FS = np.where(BV, Bs, 0.0) / cum_now[:, None]
+            FE = np.where(BV, Be, 0.0) / cum_now[:, None]
+        # PVT groups: header values rounded (MB_GROUP_STEP); the largest MB_MAX_GROUPS groups
+        # are matched, wells of other groups keep the GOR-only rules
+        step = np.array(MB_GROUP_STEP)
+        hr = np.round(np.where(np.isfinite(hdr), hdr, 0.0) / step) * step
+        kt = pd.Series([tuple(r) if ok_ else None for r, ok_ in zip(hr.tolist(), hdr_ok)], dtype=object)
+        codes, uniq = pd.factorize(kt)
+        if len(uniq) > MB_MAX_GROUPS:
+            keep = np.argsort(-np.bincount(codes[codes >= 0], minlength=len(uniq)), kind="stable")[:MB_MAX_GROUPS]
+            remap = np.full(len(uniq), -1)
+            remap[keep] = np.arange(keep.size)
+            codes = np.where(codes >= 0, remap[np.maximum(codes, 0)], -1)
+            uniq = [uniq[k] for k in keep]
+        mb = _mb_fit(BZ, np.nan_to_num(FS), np.nan_to_num(FE), BV & np.isfinite(FS), Bn, sigma, codes,
+                     [tuple(float(v) for v in u) for u in uniq])
+        mb_ok = mb["ok"] & hdr_ok
+        rn = mb["rnow"]
+        lo_r = mb["lo"]
+        # a stage is declared only when the whole 2-sigma interval of the recovery factor is
+        # past its start (the GOR data exclude the earlier stage); the best fit gives the dates
+        mb_stage = np.select([lo_r < mb["r_b"], lo_r < mb["r_s2"], mb["lo_pk"] < mb["r_pk"]], [1, 2, 3],
+                             default=4).astype(float)
+        ncum = pd.Series(cum_now / rn, index=sids)
+        mb_bp = _x_to_month(ncum * mb["r_b"], cumtab)
+        mb_s2 = _x_to_month(ncum * mb["r_s2"], cumtab)
+        mb_pk = _x_to_month(ncum * mb["r_pk"], cumtab)
+        bp_mi = np.where(mb_ok & (mb_stage >= 2), mb_bp, bp_mi)
+        bp_src = np.where(mb_ok & (mb_stage >= 2) & np.isfinite(mb_bp), "material-balance GOR match (" + mb["label"].astype(str) + ")",
+                          bp_src).astype(object)
+
+    # initial pressure at or below bubble point: crossed before first production
+    pi_ = a["pi"].to_numpy(float)
+    first_mi = a["first_mi"].to_numpy(float)
+    below_init = np.isfinite(pi_) & np.isfinite(pb) & (pi_ <= pb)
+    bp_mi = np.where(below_init, first_mi, bp_mi)
+    bp_src = np.where(below_init, "initial pressure at or below the bubble point", bp_src).astype(object)
+
+    # pressure surveys (depletion axis: cumulative oil)
+    pb_s = pd.Series(pb, index=sids)
+    sv = surveys[surveys["sid"].isin(sids)]
+    cross = crossing_from_surveys(sv, pb_s, pd.Series(pi_, index=sids)).reindex(sids)
+    c_mi = _x_to_month(cross["x_cross"], cumtab)
+    rule = cross["cross_rule"].fillna("").to_numpy(object)
+    la = _x_to_month(cross["x_last_above"], cumtab)
+    fb = _x_to_month(cross["x_first_below"], cumtab)
+    has_fb = np.isfinite(cross["x_first_below"].to_numpy(float))
+    bracket = np.isfinite(c_mi) & has_fb
+    forward = np.isfinite(c_mi) & ~has_fb
+    # order: initial pressure < Pb  >  bracketed surveys  >  GOR  >  forward extrapolation
+    take = ~below_init & (bracket | (forward & ~np.isfinite(bp_mi)))
+    bp_mi = np.where(take, c_mi, bp_mi)
+    bp_src = np.where(take, rule, bp_src).astype(object)
+    # first survey already below Pb: crossing no later than that survey
+    upper = ~below_init & ~bracket & np.isfinite(fb)
+    late = upper & (~np.isfinite(bp_mi) | (bp_mi > fb))
+    bp_mi = np.where(late, fb, bp_mi)
+    bp_src = np.where(late, "first survey already below Pb (crossing at or before it)", bp_src).astype(object)
+    # a GOR dip dated before a survey still above Pb is pushed after that survey
+    conflict = ~below_init & ~take & np.isfinite(bp_mi) & np.isfinite(la) & (bp_mi <= la)
+    bp_mi = np.where(conflict, la + 1, bp_mi)
+    bp_src = np.where(conflict, bp_src + "; moved after the last survey above Pb", bp_src).astype(object)
+    # only a pressure signal or a GOR signal dated before the as-of month counts
+    bp_mi = np.where(bp_mi > as_of, np.nan, bp_mi)
+
+    # stage at the end of history
+    stage = np.where(peak_ok, 4, np.where(has_rise, 3, np.where(np.isfinite(bp_mi), 2, 1)))
+    s2_mi = np.where(has_rise, mi_at(j2), np.nan)
+    if mb is not None:
+        stage = np.where(mb_ok, np.where((mb_stage == 1) & np.isfinite(bp_mi), 2, mb_stage), stage).astype(int)
+        peak_ok = np.where(mb_ok, stage == 4, peak_ok)
+        s2_mi = np.where(mb_ok, np.where(stage >= 3, mb_s2, np.nan), s2_mi)
+        pk_mi = np.where(mb_ok, np.where(stage == 4, mb_pk, np.nan), pk_mi)
+        # peak value: the observed smoothed GOR at the fitted peak month
+        jpk = np.argmax(np.where(V, MI == pk_mi[:, None], False), axis=1)
+        s_pk = np.where(mb_ok & (stage == 4), S[rows, jpk], s_pk)
+    bp_mi = np.where((stage >= 3) & np.isfinite(bp_mi) & np.isfinite(s2_mi) & (bp_mi > s2_mi), s2_mi, bp_mi)
+
+    res.loc[sids, "stage"] = stage
+    res.loc[sids, "rsi"] = np.exp(ln_rsi)
+    res.loc[sids, "pb"] = pb
+    res.loc[sids, "bp_mi"] = bp_mi
+    res.loc[sids, "s2_mi"] = s2_mi
+    res.loc[sids, "pk_mi"] = pk_mi
+    res.loc[sids, "pk_gor"] = np.where(peak_ok, np.exp(s_pk), np.nan)
+    res.loc[sids, "passed"] = peak_ok
+    res.loc[sids, "sigma"] = sigma
+    res.loc[sids, "n_gor"] = n_i
+    res.loc[sids, "plateau_n"] = plateau_end
+    res.loc[sids, "dip_t"] = np.where(has_h, t_dip, np.nan)
+    res.loc[sids, "last_mi_gor"] = mi_at(n_i - 1)
+    res.loc[sids, "rsi_src"] = rsi_src
+    res.loc[sids, "pb_src"] = pb_src
+    res.loc[sids, "bp_src"] = bp_src
+    res.loc[sids, "n_surveys"] = sv.groupby("sid").size().reindex(sids).fillna(0).to_numpy()
+    res.loc[sids, "last_gor"] = np.exp(S[rows, n_i - 1])
+    res.loc[sids, "peak_cand_mi"] = np.where(has_rise, mi_at(jp), np.nan)
+    res.loc[sids, "mb_ok"] = mb_ok
+    res.loc[sids, "mb_note"] = ("" if mb is None else
+                                np.where(mb_ok, "stage and dates from a material-balance GOR match ("
+                                         + mb["label"].astype(str) + np.char.mod(", residual %.2f", np.nan_to_num(mb["scale"])).astype(object)
+                                         + "); recovery factor to date " + np.char.mod("%.3f", np.nan_to_num(mb["rnow"])).astype(object)
+                                         + " (2-sigma " + np.char.mod("%.3f", np.nan_to_num(mb["lo"])).astype(object) + "-"
+                                         + np.char.mod("%.3f", np.nan_to_num(mb["hi"], posinf=0)).astype(object) + ")", ""))
+    res["n_surveys"] = res["n_surveys"].fillna(0)
+    return res
+
+
+# ----------------------------------------------------------------------------------------
+# Material-balance shape fit (GOR type-curve match against a Tarner prediction)
+# ----------------------------------------------------------------------------------------
+#: Corey gas-oil sets tried per PVT group (Sgc x Swc; Sorg 0.15, krg_max 0.8, ng 2, no 3).
+#: The set with the lowest robust misfit over the group's wells is kept for all of them
+#: (wells of one reservoir share their rock curves; common practice).
+MB_SGC_GRID = (0.02, 0.04, 0.06, 0.08, 0.10)
+MB_SWC_GRID = (0.18, 0.24)
+#: Rounding of the header (API, gas gravity, degF, Pb psia, pi psia) that groups wells into
+#: one PVT path, and the most groups matched in one call (speed guard: each group costs
+#: one Tarner run per Corey set).
+MB_GROUP_STEP = (1.0, 0.02, 5.0, 50.0, 100.0)
+MB_MAX_GROUPS = 12
+#: Wells (most producing months first) used to choose the Corey set of a group.
+MB_SELECT_WELLS = 20
+#: Recovery-factor grid (coarse, log-spaced) and refinement points.
+MB_GRID_POINTS = 60
+MB_REFINE_POINTS = 21
+#: At most this many blocks of consecutive producing months enter the fit (block GOR =
+#: summed gas / summed oil, weighted by its number of months).
+MB_MAX_BLOCKS = 48
+#: Fit accepted when its robust residual scale is at most this multiple of the noise level
+#: (plus MB_FIT_ABS_TOL); otherwise the GOR-only rules stand.
+MB_FIT_TOL = 1.3
+MB_FIT_ABS_TOL = 0.02
+#: Profile interval: recovery factors whose misfit lies within MB_PROFILE_CHI2 x sigma^2 of
+#: the best (about a 2-sigma interval for one parameter).
+MB_PROFILE_CHI2 = 4.0
+#: The GOR peak is declared passed when the interval at this level lies past the peak
+#: (about 1 sigma, one-sided ~84 %).
+MB_PEAK_CHI2 = 1.0
+
+
+@functools.lru_cache(maxsize=64)
+def _mb_curves(api: float, gamma_g: float, t_f: float, pb: float, pi: float) -> list[dict]:
+    """Tarner depletion paths for the Corey grid (core.material_balance), one dict each."""
+    from core.material_balance import PvtTable, predict_depletion  # noqa: PLC0415
+    from core.relperm import CoreyGasOil  # noqa: PLC0415
+
+    pi = max(pi, pb)
+    p_ab = max(50.0, 0.04 * pb)
+    pvt = PvtTable.from_correlations(api=api, gamma_g=gamma_g, t_f=t_f, pb_psia=pb, p_max_psia=max(pi, pb + 1.0),
+                                     p_min_psia=p_ab - 1.0)
+    out = []
+    for sgc in MB_SGC_GRID:
+        for swc in MB_SWC_GRID:
+            rp = CoreyGasOil(swc=swc, sgc=sgc, sorg=0.15)
+            pred = predict_depletion(pvt, rp, pi_psia=max(pi, pb + 1.0), p_abandon_psia=p_ab,
+                                     dp_psia=max(5.0, (pb - p_ab) / 120.0), n_steps_above=20)
+            t = pred.table
+            out.append({
+                "label": f"Tarner path, Corey Sgc {sgc:.2f} Swc {swc:.2f}",
+                "r": t["np_over_n"].to_numpy(float), "gp": t["gp_over_n_scf_stb"].to_numpy(float),
+                "gor": t["producing_gor_scf_stb"].to_numpy(float),
+                "r_b": float(pred.np_over_n_bubble),
+                "r_s2": np.nan if pred.np_over_n_stage2_end is None else float(pred.np_over_n_stage2_end),
+                "r_pk": np.nan if pred.np_over_n_gor_peak is None else float(pred.np_over_n_gor_peak),
+                "gor_pk": np.nan if pred.gor_peak_scf_stb is None else float(pred.gor_peak_scf_stb),
+            })
+    return out
+
+
+def _mb_loss(curve: dict, rnow: np.ndarray, fs: np.ndarray, fe: np.ndarray, z: np.ndarray,
+             valid: np.ndarray, clip: np.ndarray, wt: np.ndarray) -> np.ndarray:
+    """Robust misfit of ln GOR for recovery factors ``rnow`` (wells x candidates)."""
+    r, gp = curve["r"], curve["gp"]
+    rmax = r[-1]
+    w, k = rnow.shape
+    rs = rnow[:, :, None] * fs[:, None, :]
+    re = rnow[:, :, None] * fe[:, None, :]
+    g_s = np.interp(rs, r, gp)
+    g_e = np.interp(re, r, gp)
+    dr = re - rs
+    with np.errstate(divide="ignore", invalid="ignore"):
+        gor = np.where(dr > 1e-12, (g_e - g_s) / dr, np.interp(re, r, curve["gor"]))
+        res = z[:, None, :] - np.log(gor)
+    res = np.where(re > rmax, np.inf, res)
+    sq = np.minimum(wt[:, None, :] * res * res, clip[:, None, None])
+    sq = np.where(valid[:, None, :], sq, 0.0)
+    return sq.sum(axis=2)
+
+
+def _mb_fit(Z, FS, FE, V, W, sigma, groups: np.ndarray, group_keys: list) -> dict:
+    """Fit the current recovery factor of every well to its group's Tarner path.
+
+    ``FS``/``FE``: cumulative oil at the start/end of each producing month divided by the
+    well's cumulative oil to date. Returns arrays per well: ok, rnow, lo, hi, r_b, r_s2,
+    r_pk, gor_pk, scale, label.
+    """
+    ns = Z.shape[0]
+    out = {k: np.full(ns, np.nan) for k in ("rnow", "lo", "hi", "lo_pk", "r_b", "r_s2", "r_pk", "gor_pk", "scale")}
+    out["ok"] = np.zeros(ns, bool)
+    out["label"] = np.full(ns, "", dtype=object)
+    clip = (3.0 * sigma) ** 2
+    Zc = np.where(V, Z, 0.0)
+    nvalid = np.where(V, W, 0.0).sum(axis=1)
+    for gi, key in enumerate(group_keys):
+        rows = np.flatnonzero(groups == gi)
+        if rows.size == 0:
+            continue
+        try:
+            curves = _mb_curves(*key)
+        except (ValueError, ArithmeticError):
+            continue
+        # choose the Corey set on the wells with the most data
+        sel = rows[np.argsort(-nvalid[rows], kind="stable")[:MB_SELECT_WELLS]]
+        best_c, best_l = None, np.inf
+        for c in curves:
+            grid = np.exp(np.linspace(np.log(1e-3), np.log(c["r"][-1]), MB_GRID_POINTS))
+            L = _mb_loss(c, np.broadcast_to(grid, (sel.size, grid.size)), FS[sel], FE[sel], Zc[sel], V[sel], clip[sel], W[sel])
+            tot = L.min(axis=1).sum()
+            if tot < best_l:
+                best_c, best_l = c, tot
+        c = best_c
+        grid = np.exp(np.linspace(np.log(1e-3), np.log(c["r"][-1]), MB_GRID_POINTS))
+        L = _mb_loss(c, np.broadcast_to(grid, (rows.size, grid.size)), FS[rows], FE[rows], Zc[rows], V[rows], clip[rows], W[rows])
+        kb = L.argmin(axis=1)
+        # refine between the neighbours of the best grid point
+        lo_g = grid[np.maximum(kb - 1, 0)]
+        hi_g = grid[np.minimum(kb + 1, grid.size - 1)]
+        fine = lo_g[:, None] + (hi_g - lo_g)[:, None] * np.linspace(0.0, 1.0, MB_REFINE_POINTS)[None, :]
+        Lf = _mb_loss(c, fine, FS[rows], FE[rows], Zc[rows], V[rows], clip[rows], W[rows])
+        kf = Lf.argmin(axis=1)
+        rbest = fine[np.arange(rows.size), kf]
+        lbest = Lf[np.arange(rows.size), kf]
+        # profile interval on the coarse grid plus the fine points
+        allr = np.concatenate([np.broadcast_to(grid, (rows.size, grid.size)), fine], axis=1)
+        allL = np.concatenate([L, Lf], axis=1)
+        inside = allL <= (lbest + MB_PROFILE_CHI2 * sigma[rows] ** 2)[:, None]
+        lo = np.where(inside, allr, np.inf).min(axis=1)
+        hi = np.where(inside, allr, -np.inf).max(axis=1)
+        inside_pk = allL <= (lbest + MB_PEAK_CHI2 * sigma[rows] ** 2)[:, None]
+        lo_pk = np.where(inside_pk, allr, np.inf).min(axis=1)
+        # robust residual scale at the best fit
+        rs = rbest[:, None] * FS[rows]
+        re = rbest[:, None] * FE[rows]
+        dr = re - rs
+        with np.errstate(divide="ignore", invalid="ignore"):
+            gor = np.where(dr > 1e-12, (np.interp(re, c["r"], c["gp"]) - np.interp(rs, c["r"], c["gp"])) / dr,
+                           np.interp(re, c["r"], c["gor"]))
+            res = np.where(V[rows], Z[rows] - np.log(gor), np.nan)
+            import warnings  # noqa: PLC0415
+
+            with warnings.catch_warnings():
+                warnings.simplefilter("ignore", RuntimeWarning)
+                res = res * np.sqrt(W[rows])
+                scale = 1.4826 * np.nanmedian(np.abs(res - np.nanmedian(res, axis=1)[:, None]), axis=1)
+                bias = np.abs(np.nanmedian(res, axis=1))
+        ok = np.isfinite(scale) & (scale <= MB_FIT_TOL * sigma[rows] + MB_FIT_ABS_TOL) & (bias <= 3.0 * sigma[rows] + MB_FIT_ABS_TOL)
+        out["ok"][rows] = ok
+        out["rnow"][rows] = rbest
+        out["lo"][rows] = lo
+        out["hi"][rows] = hi
+        out["lo_pk"][rows] = lo_pk
+        out["scale"][rows] = scale
+        for k in ("r_b", "r_s2", "r_pk", "gor_pk"):
+            out[k][rows] = c[k]
+        out["label"][rows] = c["label"]
+    return out
+
+
+def _x_to_month(x: pd.Series, cumtab: pd.DataFrame) -> np.ndarray:
+    """First month whose end-of-month cumulative oil reaches ``x`` (per sid); NaN if never."""
+    xs = pd.DataFrame({"sid": x.index, "x": x.to_numpy(float), "k": np.arange(len(x))})
+    xs = xs[np.isfinite(xs["x"])].sort_values("x")
+    out = np.full(len(x), np.nan)
+    if xs.empty:
+        return out
+    c = cumtab[cumtab["sid"].isin(xs["sid"])].sort_values("cum_end")
+    m = pd.merge_asof(xs, c, left_on="x", right_on="cum_end", by="sid", direction="forward")
+    out[m["k"].to_numpy()] = m["mi"].to_numpy(float)
+    return out
+
+
+def _confidence(res: pd.DataFrame, as_of: int) -> np.ndarray:
+    """high / medium / low from noise, history length, surveys and time since the last event.
+
+    Score (common practice, our own weighting): noise sigma(ln GOR) < 0.07 -> +2, < 0.12 -> +1;
+    >= 24 producing months with GOR -> +1; pressure surveys present -> +1; the latest stage
+    event >= 6 months before the as-of month (or stage 1 with >= 12 months) -> +1; Rsi from a
+    long plateau or PVT -> +1. high >= 5, medium 3-4, low <= 2.
+    """
+    sig = res["sigma"].to_numpy(float)
+    score = np.where(sig < 0.07, 2, np.where(sig < 0.12, 1, 0))
+    score = score + (res["n_gor"].to_numpy(float) >= 24)
+    score = score + (res["n_surveys"].to_numpy(float) > 0)
+    ev = _event_mi(res).to_numpy(float)
+    st = res["stage"].to_numpy(float)
+    settled = np.where(st == 1, res["n_gor"].to_numpy(float) >= 12, (as_of - ev) >= 6)
+    score = score + np.nan_to_num(settled).astype(int)
+    score = score + ~res["rsi_src"].astype(str).str.startswith("median of the first").to_numpy()
+    return np.where(score >= 5, "high", np.where(score >= 3, "medium", "low"))
+
+
+def _event_mi(res: pd.DataFrame) -> pd.Series:
+    st = res["stage"]
+    return pd.Series(
+        np.select(
+            [st == 1, st == 2, st == 3, st == 4],
+            [res["first_mi"], res["bp_mi"], res["s2_mi"], res["pk_mi"]],
+            default=np.nan,
+        ),
+        index=res.index,
+    )
+
+
+def planning_status(stage) -> np.ndarray:
+    """Planning status for stage values (1-4; NA/NaN -> ``not_applicable``).
+
+    Parameters
+    ----------
+    stage : array_like
+        Depletion stage 1-4, NA when not applicable. [-]
+
+    Returns
+    -------
+    status : ndarray of str
+        One of :data:`PLANNING_STATUSES`; the rule for each is :data:`PLANNING_RULES`.
+    """
+    s = pd.to_numeric(pd.Series(stage, dtype=object), errors="coerce").to_numpy(float)
+    out = np.full(s.shape, "not_applicable", dtype=object)
+    for k, v in _STAGE_TO_STATUS.items():
+        out[s == k] = v
+    return out
+
+
+def _months_to_peak(res: pd.DataFrame, analog: pd.DataFrame, as_of: int) -> np.ndarray:
+    """Months left to the GOR peak from analogue durations (wells that passed their peak).
+
+    Stage 2: median (peak - bubble-point crossing) of the analogues minus months since the
+    crossing; stage 3: median (peak - stage-2 end) minus months since the stage-2 end;
+    floor 0 (the peak is due). Stage 4: 0. Stage 1 or fewer than ``MIN_ANALOGUES``
+    analogues: NaN.
+    """
+    d_bp = (analog["pk_mi"] - analog["bp_mi"]).dropna()
+    d_s2 = (analog["pk_mi"] - analog["s2_mi"]).dropna()
+    st = res["stage"].to_numpy(float)
+    out = np.full(len(res), np.nan)
+    if len(d_bp) >= MIN_ANALOGUES:
+        v = float(np.median(d_bp)) - (as_of - res["bp_mi"].to_numpy(float))
+        out = np.where(st == 2, np.maximum(v, 0.0), out)
+    if len(d_s2) >= MIN_ANALOGUES:
+        v = float(np.median(d_s2)) - (as_of - res["s2_mi"].to_numpy(float))
+        out = np.where(st == 3, np.maximum(v, 0.0), out)
+    out = np.where(st == 4, 0.0, out)
+    return out
+
+
+def _evidence(res: pd.DataFrame) -> list[str]:
+    cols = ["stage", "rsi", "rsi_src", "pb", "pb_src", "bp_mi", "bp_src", "s2_mi", "pk_mi", "pk_gor",
+            "peak_cand_mi", "sigma", "n_gor", "n_surveys", "last_gor"]
+    out = []
+    for r in res[cols].itertuples(index=False):
+        if not np.isfinite(r.stage):
+            out.append("")
+            continue
+        parts = [f"Rsi {r.rsi:.0f} scf/STB ({r.rsi_src})"]
+        parts.append(f"Pb {r.pb:.0f} psia ({r.pb_src})" if np.isfinite(r.pb) else "Pb unknown")
+        if np.isfinite(r.bp_mi):
+            parts.append(f"below Pb from {_fmt_month(r.bp_mi)} ({r.bp_src})")
+        if np.isfinite(r.s2_mi):
+            parts.append(f"smoothed GOR back above Rsi from {_fmt_month(r.s2_mi)}")
+        if np.isfinite(r.pk_mi):
+            parts.append(f"GOR peak {r.pk_gor:.0f} scf/STB in {_fmt_month(r.pk_mi)}, confirmed by a "
+                         f"sustained decline ({PEAK_HOLD_MONTHS} months below the peak by > "
+                         f"{PEAK_DROP_K:g} x smoothed noise)")
+        elif np.isfinite(r.peak_cand_mi):
+            parts.append(f"highest smoothed GOR so far in {_fmt_month(r.peak_cand_mi)}, peak not confirmed")
+        parts.append(f"latest smoothed GOR {r.last_gor:.0f} scf/STB")
+        parts.append(f"{int(r.n_gor)} producing months with GOR, noise {100 * r.sigma:.0f} %, "
+                     f"{int(r.n_surveys)} pressure surveys")
+        out.append("; ".join(parts))
+    return out
+
+
+def _attrs_from_wells(ids: pd.Index, wells: pd.DataFrame | None, key: str) -> pd.DataFrame:
+    a = pd.DataFrame(index=ids)
+    cols = {"bubble_point_psia": "pb_given", "api_gravity": "api", "gas_specific_gravity": "gamma_g",
+            "reservoir_temp_f": "t_f", "initial_pressure_psia": "pi"}
+    if wells is not None and len(wells) and key in wells:
+        w = wells.drop_duplicates(key).set_index(key)
+        for src, dst in cols.items():
+            a[dst] = pd.to_numeric(w[src], errors="coerce").reindex(ids).to_numpy(float) if src in w else np.nan
+    else:
+        for dst in cols.values():
+            a[dst] = np.nan
+    return a
+
+
+def _as_of_index(production: pd.DataFrame, as_of) -> int:
+    if as_of is not None:
+        return int(_month_index(pd.Series([pd.Timestamp(as_of)]))[0])
+    return int(_month_index(production["month"]).max())
+
+
+def _check_production(production: pd.DataFrame, need: tuple[str, ...]) -> None:
+    if not isinstance(production, pd.DataFrame):
+        raise InputError("production must be a DataFrame (the loader's tidy monthly table)")
+    missing = [c for c in need if c not in production.columns]
+    if missing:
+        raise InputError(f"production table lacks column(s) {missing}; expected the tidy monthly table")
+
+
+def _finish(res: pd.DataFrame, attrs: pd.DataFrame, as_of: int, analog: pd.DataFrame | None) -> pd.DataFrame:
+    """Reasons, confidence, planning status and the contract columns (shared by wells/units)."""
+    res = res.join(attrs[["first_mi", "applicable", "reason"]])
+    app = res["applicable"].to_numpy(bool)
+    short = app & (res["n_gor"].fillna(0).to_numpy() < MIN_GOR_MONTHS)
+    reason = res["reason"].to_numpy(object).copy()
+    reason[short] = [f"too little history ({int(n)} producing months with a GOR, need {MIN_GOR_MONTHS})"
+                     for n in res["n_gor"].fillna(0).to_numpy()[short]]
+    ok = app & ~short
+    for c in ("stage", "bp_mi", "s2_mi", "pk_mi", "pk_gor", "rsi"):
+        res.loc[~ok, c] = np.nan
+    res.loc[~ok, "passed"] = False
+    res["reason"] = np.where(ok, "", reason)
+    conf = np.where(ok, _confidence(res, as_of), "")
+    status = planning_status(res["stage"].to_numpy())
+    ev = _event_mi(res)
+    since = as_of - ev.to_numpy(float)
+    analog_tab = res[res["passed"].astype(bool)] if analog is None else analog
+    to_pk = _months_to_peak(res, analog_tab, as_of)
+    st = res["stage"].to_numpy(float)
+    regime = np.where(st >= 2, res["bp_mi"].to_numpy(float), np.nan)
+    evidence = _evidence(res)
+    out = pd.DataFrame({
+        "stage": pd.array(np.where(np.isfinite(st), st, np.nan), dtype="Float64").astype("Int64"),
+        "stage_reason": res["reason"].astype(str).to_numpy(),
+        "stage_confidence": conf,
+        "rsi_scf_stb": res["rsi"].to_numpy(float),
+        "bubble_point_psia": res["pb"].to_numpy(float),
+        "bubble_point_date": _index_to_month(res["bp_mi"].to_numpy(float)),
+        "stage2_end_date": _index_to_month(res["s2_mi"].to_numpy(float)),
+        "gor_peak_date": _index_to_month(res["pk_mi"].to_numpy(float)),
+        "gor_peak_scf_stb": res["pk_gor"].to_numpy(float),
+        "passed_gor_peak": res["passed"].to_numpy(bool),
+        "planning_status": status,
+        "planning_rule": [PLANNING_RULES[s] for s in status],
+        "months_since_event": since,
+        "months_to_gor_peak_est": to_pk,
+        "regime_start": _index_to_month(regime),
+        "stage_evidence": [e if e else r for e, r in zip(evidence, res["reason"].astype(str))],
+    }, index=res.index)
+    return out, res
+
+
+# ----------------------------------------------------------------------------------------
+# Public API
+# ----------------------------------------------------------------------------------------
+def track_wells(
+    production: pd.DataFrame,
+    wells: pd.DataFrame | None = None,
+    fluids: pd.DataFrame | None = None,
+    *,
+    as_of=None,
+    material_balance_fit: bool = True,
+) -> pd.DataFrame:
+    """Depletion stage, stage dates and waterflood planning status of every well.
+
+    Parameters
+    ----------
+    production : DataFrame
+        The loader's tidy monthly table. Used: ``well_id``, ``month``, ``oil_bbl`` [bbl],
+        ``gas_mcf`` [Mcf], ``days_on`` [d], ``days_in_month`` [d], ``pressure_psia`` [psia]
+        (missing optional columns are tolerated: no gas column gives "no gas data").
+    wells : DataFrame, optional
+        Well header: ``bubble_point_psia`` [psia], ``api_gravity`` [°API],
+        ``gas_specific_gravity`` [-], ``reservoir_temp_f`` [°F], ``initial_pressure_psia``
+        [psia]; NaN where unknown.
+    fluids : DataFrame, optional
+        ``core.fluids.classify_field`` output (``well_id``, ``fluid_type``). Wells typed as
+        gas condensate, wet gas, dry gas or bitumen get stage NA; ``unknown`` or absent
+        wells are tracked (their evidence says the fluid type is unknown).
+    as_of : date-like, optional
+        Month the status refers to; default the last month in ``production``.
+    material_balance_fit : bool, optional
+        Match each well's GOR history against a Tarner material-balance path built from
+        its PVT header (API, gas gravity, temperature, bubble point, initial pressure) and
+        take the stage and dates from it where the match is good (see the module notes).
+        Wells without a complete header use the GOR-only rules either way.
+
+    Returns
+    -------
+    DataFrame
+        One row per well with the columns of the DEVELOPERS.md stage-tracker contract.
+
+    Notes
+    -----
+    Rsi: the median producing GOR of the early plateau when the plateau lasts
+    ``MIN_PLATEAU_MONTHS`` or more (a direct field measurement at separator conditions,
+    preferred to a correlation whose typical error is 10 % or more); otherwise Standing's
+    Rs at the given bubble point (Standing 1947, via ``core.pvt.rs_standing``); otherwise
+    the median of the first producing months (low confidence). Bubble point: given, else
+    Standing (1947) from Rsi, API, gas gravity and temperature (``core.pvt``). The stage
+    rules and the peak-confirmation rule are in the module docstring.
+
+    References
+    ----------
+    .. [1] M. B. Standing, "A Pressure-Volume-Temperature Correlation for Mixtures of
+       California Oils and Gases," Drill. & Prod. Prac., API, 1947, pp. 275-287.
+    .. [2] T. Ahmed, Reservoir Engineering Handbook, Gulf Professional Publishing,
+       chapter on oil-reservoir performance prediction (Tarner 1944, Muskat 1945).
+    """
+    _check_production(production, ("well_id", "month", "oil_bbl"))
+    if len(production) == 0:
+        return pd.DataFrame({c: pd.Series(dtype=object) for c in WELL_COLUMNS})
+    as_of_i = _as_of_index(production, as_of)
+    prod = production[_month_index(production["month"]) <= as_of_i]
+    months, surveys, counts, cumtab = _prepare(prod, "well_id")
+    all_ids = pd.Index(pd.unique(production["well_id"]), name="sid")
+    counts = counts.reindex(all_ids)
+    attrs = _attrs_from_wells(all_ids, wells, "well_id")
+    attrs["first_mi"] = counts["first_mi"].to_numpy(float)
+    ftype = pd.Series("unknown", index=all_ids, dtype=object)
+    if fluids is not None and len(fluids) and "fluid_type" in fluids:
+        f = fluids.drop_duplicates("well_id").set_index("well_id")["fluid_type"].astype(str)
+        ftype = f.reindex(all_ids).fillna("unknown")
+    not_oil = ftype.isin(NOT_OIL_FLUID_TYPES).to_numpy()
+    no_gas = ~counts["gas_known"].fillna(False).to_numpy(bool)
+    reason = np.where(not_oil, "not an oil well by fluid type (" + ftype.to_numpy(str) + ")",
+                      np.where(no_gas, "no gas data (gas volumes missing for every month)", ""))
+    attrs["applicable"] = ~not_oil & ~no_gas
+    attrs["reason"] = reason
+    res = _analyse(months, surveys, cumtab, attrs, as_of_i, material_balance_fit)
+    out, full = _finish(res, attrs, as_of_i, None)
+    unknown = (ftype == "unknown").to_numpy() & (out["stage_reason"] == "").to_numpy()
+    out.loc[unknown, "stage_evidence"] = "fluid type unknown, tracked as oil; " + out.loc[unknown, "stage_evidence"]
+    out.insert(0, "well_id", all_ids.to_numpy())
+    return out.reset_index(drop=True)[WELL_COLUMNS]
+
+
+def track_units(
+    production: pd.DataFrame,
+    well_stages: pd.DataFrame,
+    wells: pd.DataFrame | None = None,
+    *,
+    as_of=None,
+) -> pd.DataFrame:
+    """Depletion stage and planning status of every reservoir unit.
+
+    Parameters
+    ----------
+    production : DataFrame
+        The loader's tidy monthly table (``unit`` column; volumes as in :func:`track_wells`).
+    well_stages : DataFrame
+        :func:`track_wells` output for the same production.
+    wells : DataFrame, optional
+        Well header; a unit's bubble point is the median of its wells' bubble points.
+    as_of : date-like, optional
+        Month the status refers to; default the last month in ``production``.
+
+    Returns
+    -------
+    DataFrame
+        One row per unit: ``unit``, ``stage``, ``stage_confidence``, ``n_wells``,
+        ``share_stage_1`` .. ``share_stage_4``, ``share_not_applicable``,
+        ``bubble_point_date``, ``months_since_bubble_point``, ``gor_peak_date``,
+        ``months_to_gor_peak_est``, ``planning_status``, ``planning_rule``,
+        ``months_since_event``, ``rsi_scf_stb``, ``bubble_point_psia``,
+        ``stage2_end_date``, ``regime_start``, ``stage_evidence``, totals ``cum_oil_bbl``,
+        ``cum_gas_mcf``, ``cum_water_bbl``, and the unit's latest ``gor_scf_stb``.
+
+    Notes
+    -----
+    The unit series is built from summed volumes (unit GOR = 1000 sum gas / sum oil of its
+    wells each month, i.e. the volume-weighted GOR), its pressure is the median of its
+    wells' surveys in a month, and its stage follows the same rules as a well's. Only wells
+    with an applicable stage contribute to the unit's GOR series (a gas-condensate well
+    would distort it). Analogue durations for the months-to-peak estimate come from the
+    wells that passed their GOR peak.
+    """
+    _check_production(production, ("well_id", "month", "oil_bbl", "unit"))
+    as_of_i = _as_of_index(production, as_of)
+    prod = production[_month_index(production["month"]) <= as_of_i]
+    ws = well_stages.set_index("well_id")
+    unit_of = prod.groupby("well_id", sort=False)["unit"].first().astype(str)
+    units = pd.Index(sorted(pd.unique(prod["unit"].astype(str))), name="sid")
+    useries = unit_monthly(prod, well_stages)
+    months, surveys, counts, cumtab = _prepare(useries, "unit")
+    latest_gor = useries.dropna(subset=["gor_scf_stb"]).groupby("unit")["gor_scf_stb"].last()
+    counts = counts.reindex(units)
+    attrs = _attrs_from_wells(units, None, "unit")
+    if wells is not None and len(wells) and "bubble_point_psia" in wells:
+        w = wells.drop_duplicates("well_id").set_index("well_id")
+        wu = unit_of.reindex(w.index).astype(str)
+        for src, dst in (("bubble_point_psia", "pb_given"), ("api_gravity", "api"),
+                         ("gas_specific_gravity", "gamma_g"), ("reservoir_temp_f", "t_f"),
+                         ("initial_pressure_psia", "pi")):
+            if src in w:
+                attrs[dst] = pd.to_numeric(w[src], errors="coerce").groupby(wu).median().reindex(units).to_numpy(float)
+    # wells' bubble points where the header had none (Standing from Rsi)
+    wpb = ws["bubble_point_psia"].groupby(unit_of.reindex(ws.index).astype(str)).median()
+    attrs["pb_given"] = np.where(np.isfinite(attrs["pb_given"]), attrs["pb_given"],
+                                 wpb.reindex(units).to_numpy(float))
+    attrs["first_mi"] = counts["first_mi"].to_numpy(float)
+    n_app = ws["stage"].notna().groupby(unit_of.reindex(ws.index).astype(str)).sum().reindex(units).fillna(0)
+    attrs["applicable"] = (n_app > 0).to_numpy() & counts["gas_known"].fillna(False).to_numpy(bool)
+    attrs["reason"] = np.where(n_app.to_numpy() > 0, "no gas data for the unit's oil wells",
+                               "no well of the unit has an applicable stage")
+    res = _analyse(months, surveys, cumtab, attrs, as_of_i)
+    analog = pd.DataFrame({
+        "pk_mi": _month_index_or_nan(ws["gor_peak_date"]),
+        "bp_mi": _month_index_or_nan(ws["bubble_point_date"]),
+        "s2_mi": _month_index_or_nan(ws["stage2_end_date"]),
+    })
+    analog = analog[np.isfinite(analog["pk_mi"])]
+    out, full = _finish(res, attrs, as_of_i, analog)
+
+    wu_all = unit_of.reindex(ws.index).astype(str)
+    st = ws["stage"]
+    n_wells = wu_all.groupby(wu_all).size().reindex(units).fillna(0).astype(int)
+    shares = {}
+    for k in (1, 2, 3, 4):
+        shares[f"share_stage_{k}"] = (st == k).fillna(False).groupby(wu_all).mean().reindex(units).to_numpy(float)
+    shares["share_not_applicable"] = st.isna().groupby(wu_all).mean().reindex(units).to_numpy(float)
+    tot = {}
+    for c in ("oil_bbl", "gas_mcf", "water_bbl"):
+        if c in prod:
+            tot["cum_" + c] = (pd.to_numeric(prod[c], errors="coerce").groupby(prod["unit"].astype(str))
+                               .sum(min_count=1).reindex(units).to_numpy(float))
+        else:
+            tot["cum_" + c] = np.full(len(units), np.nan)
+    bp_mi = full["bp_mi"].to_numpy(float)
+    table = pd.DataFrame({
+        "unit": units.to_numpy(),
+        "stage": out["stage"].to_numpy(),
+        "stage_reason": out["stage_reason"].to_numpy(),
+        "stage_confidence": out["stage_confidence"].to_numpy(),
+        "n_wells": n_wells.to_numpy(),
+        **shares,
+        "rsi_scf_stb": out["rsi_scf_stb"].to_numpy(),
+        "bubble_point_psia": out["bubble_point_psia"].to_numpy(),
+        "bubble_point_date": out["bubble_point_date"].to_numpy(),
+        "months_since_bubble_point": as_of_i - bp_mi,
+        "stage2_end_date": out["stage2_end_date"].to_numpy(),
+        "gor_peak_date": out["gor_peak_date"].to_numpy(),
+        "gor_peak_scf_stb": out["gor_peak_scf_stb"].to_numpy(),
+        "months_to_gor_peak_est": out["months_to_gor_peak_est"].to_numpy(),
+        "planning_status": out["planning_status"].to_numpy(),
+        "planning_rule": out["planning_rule"].to_numpy(),
+        "months_since_event": out["months_since_event"].to_numpy(),
+        "regime_start": out["regime_start"].to_numpy(),
+        "gor_scf_stb": latest_gor.reindex(units).to_numpy(float),
+        **tot,
+        "stage_evidence": out["stage_evidence"].to_numpy(),
+    })
+    table["stage"] = table["stage"].astype("Int64")
+    return table
+
+
+def unit_monthly(production: pd.DataFrame, well_stages: pd.DataFrame | None = None) -> pd.DataFrame:
+    """Monthly series of each reservoir unit from the summed volumes of its wells.
+
+    Parameters
+    ----------
+    production : DataFrame
+        The loader's tidy monthly table (``unit``, ``month``, ``oil_bbl`` [bbl],
+        ``gas_mcf`` [Mcf], ``water_bbl`` [bbl], ``days_on`` [d], ``pressure_psia`` [psia]).
+    well_stages : DataFrame, optional
+        :func:`track_wells` output; when given, wells with no applicable stage (gas
+        condensates, wells without gas data) are left out of the sums.
+
+    Returns
+    -------
+    DataFrame
+        ``unit``, ``month``, ``oil_bbl``, ``gas_mcf``, ``water_bbl`` (sums; gas NaN when no
+        well reported gas), ``days_on`` (largest of the wells) [d], ``days_in_month`` [d],
+        ``pressure_psia`` (median of the surveys in the month) [psia], ``gor_scf_stb``
+        (1000 sum gas / sum oil, the oil-weighted mean of the wells' GORs) [scf/STB],
+        ``n_producing`` (wells with oil > 0).
+    """
+    prod = production
+    if well_stages is not None and len(well_stages):
+        ok = well_stages.loc[well_stages["stage"].notna(), "well_id"]
+        prod = prod[prod["well_id"].isin(ok)]
+    prod = prod.assign(unit=prod["unit"].astype(str))
+    g = prod.groupby(["unit", "month"], sort=True)
+    out = g["oil_bbl"].sum().rename("oil_bbl").to_frame()
+    for c in ("gas_mcf", "water_bbl"):
+        out[c] = g[c].sum(min_count=1) if c in prod else np.nan
+    out["days_on"] = g["days_on"].max() if "days_on" in prod else np.nan
+    if "days_in_month" in prod:
+        out["days_in_month"] = g["days_in_month"].max()
+    else:
+        out["days_in_month"] = pd.to_datetime(out.index.get_level_values("month")).days_in_month.to_numpy()
+    out["pressure_psia"] = g["pressure_psia"].median() if "pressure_psia" in prod else np.nan
+    with np.errstate(divide="ignore", invalid="ignore"):
+        gor = 1000.0 * out["gas_mcf"].to_numpy(float) / out["oil_bbl"].to_numpy(float)
+    out["gor_scf_stb"] = np.where(out["oil_bbl"].to_numpy(float) > 0, gor, np.nan)
+    out["n_producing"] = (pd.to_numeric(prod["oil_bbl"], errors="coerce") > 0).groupby(
+        [prod["unit"], prod["month"]]).sum()
+    return out.reset_index()
+
+
+def _month_index_or_nan(s: pd.Series) -> np.ndarray:
+    d = pd.to_datetime(s)
+    mi = d.dt.year.to_numpy(float) * 12 + d.dt.month.to_numpy(float) - 1
+    return np.where(d.isna().to_numpy(), np.nan, mi)

@@ -1,0 +1,361 @@
+"""Tests of core.stages: stage tracker and waterflood planning status.
+
+Sources of the expected values are given beside each check. The four-stage GOR picture is
+Tarner (1944) / Muskat (1945) as presented in Ahmed's Reservoir Engineering Handbook
+(check-values 5.3); the planning rules cite check-values 8.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from core.stages import (
+    PLANNING_RULES,
+    PLANNING_STATUSES,
+    crossing_from_surveys,
+    planning_status,
+    track_units,
+    track_wells,
+    unit_monthly,
+)
+
+WELL_COLUMNS = [
+    "well_id", "stage", "stage_reason", "stage_confidence", "rsi_scf_stb", "bubble_point_psia",
+    "bubble_point_date", "stage2_end_date", "gor_peak_date", "gor_peak_scf_stb", "passed_gor_peak",
+    "planning_status", "planning_rule", "months_since_event", "months_to_gor_peak_est", "regime_start",
+    "stage_evidence",
+]
+
+
+def _table(well_id, gor, *, start="2015-01-01", oil=None, days=None, pressure=None, unit="U1", gas=True):
+    """A tidy monthly table for one well from a GOR series (scf/STB)."""
+    n = len(gor)
+    months = pd.date_range(start, periods=n, freq="MS")
+    dim = months.days_in_month.to_numpy().astype(float)
+    days = dim.copy() if days is None else np.asarray(days, float)
+    oil = np.where(days > 0, 300.0 * days * np.exp(-0.01 * np.arange(n)), 0.0) if oil is None else np.asarray(oil, float)
+    t = pd.DataFrame({
+        "well_id": well_id, "month": months, "unit": unit, "oil_bbl": oil,
+        "gas_mcf": np.where(oil > 0, oil * np.asarray(gor, float) / 1000.0, 0.0),
+        "water_bbl": 0.0, "days_on": days, "days_in_month": dim,
+        "pressure_psia": np.nan if pressure is None else np.asarray(pressure, float),
+    })
+    if not gas:
+        t = t.drop(columns="gas_mcf")
+    return t
+
+
+def _shape(n, rsi, tb, d2, d3, *, dip=0.12, ratio=6.0, decline=0.5, d4=24.0):
+    """Four-stage ln GOR shape with known dates (indices): crossing tb, stage-2 end tb+d2,
+    peak tb+d2+d3 (a stand-in with the Tarner shape of check-values 5.3, not the
+    material-balance model)."""
+    t = np.arange(n, dtype=float)
+    ln = np.full(n, np.log(rsi))
+    s2 = (t >= tb) & (t < tb + d2)
+    ln[s2] += np.log(1 - dip * np.sin(np.pi * (t[s2] - tb) / d2))
+    s3 = (t >= tb + d2) & (t < tb + d2 + d3)
+    ln[s3] += np.log(ratio) * np.sin(np.pi / 2 * (t[s3] - tb - d2) / d3)
+    s4 = t >= tb + d2 + d3
+    v = (t[s4] - tb - d2 - d3) / d4
+    ln[s4] += np.log(ratio) - decline * np.log(ratio) * np.minimum(v, 1.0) ** 2
+    return np.exp(ln)
+
+
+def _noisy(gor, sigma, seed):
+    rng = np.random.default_rng(seed)
+    return gor * np.exp(rng.normal(0.0, sigma, len(gor)))
+
+
+def _row(out, well):
+    return out.set_index("well_id").loc[well]
+
+
+# ---------------------------------------------------------------------------------------
+# contract
+# ---------------------------------------------------------------------------------------
+def test_track_wells_contract_columns_and_types():
+    prod = _table("A-1", _noisy(_shape(120, 600.0, 30, 15, 40), 0.08, 1))
+    out = track_wells(prod, None, None)
+    assert list(out.columns) == WELL_COLUMNS
+    assert str(out["stage"].dtype) == "Int64"
+    for c in ("bubble_point_date", "stage2_end_date", "gor_peak_date", "regime_start"):
+        assert str(out[c].dtype).startswith("datetime64")
+    assert out["passed_gor_peak"].dtype == bool
+    assert set(out["planning_status"]) <= set(PLANNING_STATUSES)
+
+
+def test_four_clean_wells_get_their_stages_and_dates():
+    # Stand-in shapes with known dates (see _shape); 5 % noise, GOR-only rules (no header).
+    n = 150
+    cases = {  # well: (tb, d2, d3, expected stage at month n-1)
+        "S1": (200, 15, 40, 1),
+        "S2": (120, 40, 40, 2),
+        "S3": (60, 15, 120, 3),
+        "S4": (30, 15, 40, 4),
+    }
+    prod = pd.concat([_table(w, _noisy(_shape(n, 700.0, *c[:3], dip=0.15), 0.05, k))
+                      for k, (w, c) in enumerate(cases.items())], ignore_index=True)
+    out = track_wells(prod, None, None)
+    start = pd.Timestamp("2015-01-01")
+    for w, (tb, d2, d3, st) in cases.items():
+        r = _row(out, w)
+        assert r["stage"] == st, (w, r["stage_evidence"])
+        assert r["planning_status"] == planning_status([st])[0]
+        if st >= 2:
+            bp = start + pd.DateOffset(months=tb)
+            assert abs((r["bubble_point_date"] - bp).days) <= 4 * 31, w
+            assert r["regime_start"] == r["bubble_point_date"]
+        else:
+            assert pd.isna(r["regime_start"])
+        if st >= 3:
+            s2 = start + pd.DateOffset(months=tb + d2)
+            assert abs((r["stage2_end_date"] - s2).days) <= 3 * 31, w
+        if st == 4:
+            pk = start + pd.DateOffset(months=tb + d2 + d3)
+            assert r["passed_gor_peak"]
+            assert abs((r["gor_peak_date"] - pk).days) <= 4 * 31, w
+            # peak value: the smoothed GOR near 700 x 6 = 4200 scf/STB (shape definition)
+            assert r["gor_peak_scf_stb"] == pytest.approx(4200.0, rel=0.1)
+        else:
+            assert not r["passed_gor_peak"] and pd.isna(r["gor_peak_date"])
+    # Rsi from the early plateau: the stand-in's 700 scf/STB within the 5 % noise
+    assert _row(out, "S1")["rsi_scf_stb"] == pytest.approx(700.0, rel=0.04)
+
+
+# ---------------------------------------------------------------------------------------
+# noise, spikes, gaps
+# ---------------------------------------------------------------------------------------
+def test_single_noisy_spike_does_not_declare_a_peak_or_stage_change():
+    # Flat GOR (stage 1) with one month at 4x: a metering error, not a stage change.
+    gor = _noisy(np.full(60, 500.0), 0.05, 3)
+    gor[40] *= 4.0
+    r = _row(track_wells(_table("SP-1", gor), None, None), "SP-1")
+    assert r["stage"] == 1
+    assert not r["passed_gor_peak"]
+    assert pd.isna(r["stage2_end_date"]) and pd.isna(r["gor_peak_date"])
+
+
+def test_single_spike_in_a_rising_gor_is_not_a_peak():
+    # Stage 3 (rising GOR) with a one-month spike six months before the end.
+    gor = _noisy(_shape(100, 600.0, 20, 15, 200), 0.05, 4)
+    gor[93] *= 3.0
+    r = _row(track_wells(_table("SP-2", gor), None, None), "SP-2")
+    assert r["stage"] == 3
+    assert not r["passed_gor_peak"]
+
+
+def test_shut_in_gap_and_low_uptime_do_not_create_a_stage_change():
+    # Flat GOR with an 8-month shut-in (oil 0, days_on 0), 6 missing months and low-uptime
+    # months carrying distorted GOR: still stage 1, no crossing.
+    n = 90
+    gor = _noisy(np.full(n, 800.0), 0.06, 5)
+    days = np.full(n, 30.0)
+    days[30:38] = 0.0
+    days[[50, 51]] = 3.0
+    gor[[50, 51]] *= 0.4
+    prod = _table("G-1", gor, days=days)
+    prod = prod.drop(index=range(60, 66))
+    r = _row(track_wells(prod, None, None), "G-1")
+    assert r["stage"] == 1
+    assert pd.isna(r["bubble_point_date"])
+    assert r["planning_status"] == "window_ahead"
+
+
+def test_gap_does_not_move_the_stage_dates():
+    # The same stage-4 well with and without a 10-month shut-in in stage 3: stage-2 end
+    # unchanged (before the gap), stage unchanged. Regression against the ungapped run.
+    gor = _noisy(_shape(150, 700.0, 30, 15, 40), 0.05, 6)
+    days = np.full(150, 30.0)
+    days[70:80] = 0.0
+    a = _row(track_wells(_table("H-1", gor), None, None), "H-1")
+    b = _row(track_wells(_table("H-1", gor, days=days), None, None), "H-1")
+    assert a["stage"] == b["stage"] == 4
+    assert a["stage2_end_date"] == b["stage2_end_date"]
+
+
+# ---------------------------------------------------------------------------------------
+# not applicable
+# ---------------------------------------------------------------------------------------
+def test_gas_condensate_well_is_not_applicable_with_reason():
+    prod = pd.concat([_table("GC-1", np.full(40, 12000.0)), _table("OIL-1", np.full(40, 600.0))])
+    fluids = pd.DataFrame({"well_id": ["GC-1", "OIL-1"], "fluid_type": ["gas_condensate", "black_oil"]})
+    out = track_wells(prod, None, fluids)
+    r = _row(out, "GC-1")
+    assert pd.isna(r["stage"])
+    assert "not an oil well" in r["stage_reason"] and "gas_condensate" in r["stage_reason"]
+    assert r["stage_confidence"] == ""
+    assert r["planning_status"] == "not_applicable"
+    assert _row(out, "OIL-1")["stage"] == 1
+
+
+def test_well_without_gas_column_is_not_applicable_with_reason():
+    r = _row(track_wells(_table("NG-1", np.full(30, 600.0), gas=False), None, None), "NG-1")
+    assert pd.isna(r["stage"])
+    assert "no gas data" in r["stage_reason"]
+    assert r["planning_status"] == "not_applicable"
+    assert np.isnan(r["months_since_event"])
+
+
+def test_too_little_history_is_not_applicable():
+    r = _row(track_wells(_table("SH-1", np.full(4, 600.0)), None, None), "SH-1")
+    assert pd.isna(r["stage"]) and "too little history" in r["stage_reason"]
+
+
+def test_missing_required_column_raises_input_error():
+    with pytest.raises(ValueError, match="lacks column"):
+        track_wells(pd.DataFrame({"well_id": ["A"], "month": [pd.Timestamp("2020-01-01")]}))
+
+
+# ---------------------------------------------------------------------------------------
+# pressure surveys
+# ---------------------------------------------------------------------------------------
+def test_crossing_linear_interpolation_hand_calculation():
+    # Hand calculation: last survey above Pb at x = 100,000 bbl, 2,200 psia; first below at
+    # 200,000 bbl, 2,000 psia; Pb 2,100 psia -> x* = 100,000 + (100/200) 100,000 = 150,000.
+    s = pd.DataFrame({"sid": ["W", "W"], "x": [1.0e5, 2.0e5], "p": [2200.0, 2000.0]})
+    r = crossing_from_surveys(s, pd.Series({"W": 2100.0})).loc["W"]
+    assert r["x_cross"] == pytest.approx(150_000.0, rel=1e-12)
+    assert "linear interpolation" in r["cross_rule"]
+
+
+def test_crossing_trend_above_bubble_point_hand_calculation():
+    # Points above Pb: (0, 3000) initial, (50,000, 2,750), (100,000, 2,500) psia: exact line
+    # p = 3000 - 0.005 x. Pb 2,100 -> x* = 180,000 bbl (hand calculation), inside the
+    # bracket [100,000, 300,000] of the first survey below.
+    s = pd.DataFrame({"sid": ["W"] * 3, "x": [5.0e4, 1.0e5, 3.0e5], "p": [2750.0, 2500.0, 1800.0]})
+    r = crossing_from_surveys(s, pd.Series({"W": 2100.0}), pd.Series({"W": 3000.0})).loc["W"]
+    assert r["x_cross"] == pytest.approx(180_000.0, rel=1e-9)
+    assert r["n_above"] == 3
+    # no survey below: forward extrapolation allowed over at most the fitted span (100,000)
+    s2 = s.iloc[:2]
+    r2 = crossing_from_surveys(s2, pd.Series({"W": 2100.0}), pd.Series({"W": 3000.0})).loc["W"]
+    assert r2["x_cross"] == pytest.approx(180_000.0, rel=1e-9)
+    r3 = crossing_from_surveys(s2, pd.Series({"W": 1500.0}), pd.Series({"W": 3000.0})).loc["W"]
+    assert np.isnan(r3["x_cross"])  # x* = 300,000 > 100,000 + 100,000: not extrapolated
+
+
+def test_crossing_back_trend_below_bubble_point_hand_calculation():
+    # One point above (2,300 psia at 100,000) then three below on p = 2,150 - 0.001 (x - 150,000)
+    # -> back-extrapolated Pb 2,100 at x* = 200,000 (hand calculation), inside [100,000, 250,000].
+    x = np.array([1.0e5, 2.5e5, 3.5e5, 4.5e5])
+    p = np.array([2300.0, 2150.0 - 0.001 * 1.0e5, 2150.0 - 0.001 * 2.0e5, 2150.0 - 0.001 * 3.0e5])
+    s = pd.DataFrame({"sid": "W", "x": x, "p": p})
+    r = crossing_from_surveys(s, pd.Series({"W": 2100.0})).loc["W"]
+    assert r["x_cross"] == pytest.approx(200_000.0, rel=1e-9)
+
+
+def test_well_crossing_month_from_surveys_hand_calculation():
+    # Constant 9,000 bbl/month (days_on given, 300 bbl/d x 30 d), surveys in month 10
+    # (2,200 psia) and month 20 (2,000 psia), Pb 2,100, no initial pressure. Mid-month
+    # cumulative: 9,000 (k + 0.5). Linear interpolation: x* = 9,000 x 15.5 = 139,500 bbl,
+    # reached at the end of month index 15 (cumulative 144,000) -> 2016-04 (hand calculation).
+    n = 40
+    p = np.full(n, np.nan)
+    p[10], p[20] = 2200.0, 2000.0
+    prod = _table("P-1", _noisy(np.full(n, 600.0), 0.03, 7), oil=np.full(n, 9000.0),
+                  days=np.full(n, 30.0), pressure=p)
+    wells = pd.DataFrame({"well_id": ["P-1"], "bubble_point_psia": [2100.0]})
+    r = _row(track_wells(prod, wells, None), "P-1")
+    assert r["bubble_point_date"] == pd.Timestamp("2016-04-01")
+    assert r["stage"] == 2 and r["planning_status"] == "window_open"
+    assert "pressure surveys" in r["stage_evidence"]
+
+
+# ---------------------------------------------------------------------------------------
+# units
+# ---------------------------------------------------------------------------------------
+def test_unit_monthly_is_the_summed_volume_gor():
+    # Closed-form identity: unit GOR = 1000 sum(gas) / sum(oil) = oil-weighted mean of the
+    # wells' GORs; cumulative totals are plain sums.
+    a = _table("A", np.full(12, 500.0), oil=np.full(12, 1000.0))
+    b = _table("B", np.full(12, 2000.0), oil=np.full(12, 3000.0))
+    prod = pd.concat([a, b], ignore_index=True)
+    u = unit_monthly(prod)
+    assert np.allclose(u["gor_scf_stb"], (1000 * 500 + 3000 * 2000) / 4000.0, rtol=1e-12)
+    assert np.allclose(u["oil_bbl"], 4000.0)
+    ws = track_wells(prod, None, None)
+    ut = track_units(prod, ws, None).set_index("unit").loc["U1"]
+    assert ut["cum_oil_bbl"] == pytest.approx(prod["oil_bbl"].sum(), rel=1e-12)
+    assert ut["cum_gas_mcf"] == pytest.approx(prod["gas_mcf"].sum(), rel=1e-12)
+    assert ut["n_wells"] == 2
+    assert ut["gor_scf_stb"] == pytest.approx(1625.0, rel=1e-12)
+
+
+def test_unit_leaves_out_not_applicable_wells_and_reports_shares():
+    oil = _table("O", _noisy(np.full(48, 600.0), 0.05, 8))
+    gc = _table("C", np.full(48, 15000.0))
+    prod = pd.concat([oil, gc], ignore_index=True)
+    fluids = pd.DataFrame({"well_id": ["O", "C"], "fluid_type": ["black_oil", "gas_condensate"]})
+    ws = track_wells(prod, None, fluids)
+    u = unit_monthly(prod, ws)
+    assert np.allclose(u["gor_scf_stb"], 1000 * oil["gas_mcf"].to_numpy() / oil["oil_bbl"].to_numpy())
+    ut = track_units(prod, ws, None).set_index("unit").loc["U1"]
+    assert ut["share_stage_1"] == 0.5 and ut["share_not_applicable"] == 0.5
+    assert ut["stage"] == 1 and ut["planning_status"] == "window_ahead"
+
+
+# ---------------------------------------------------------------------------------------
+# planning status
+# ---------------------------------------------------------------------------------------
+def test_planning_status_per_stage_and_rule_sources():
+    # Vocabulary and sourcing per DEVELOPERS.md and check-values section 8.
+    got = planning_status(pd.array([1, 2, 3, 4, pd.NA], dtype="Int64"))
+    assert list(got) == ["window_ahead", "window_open", "window_closing", "window_passed", "not_applicable"]
+    assert "Holmgren" in PLANNING_RULES["window_open"] and "RI 7911" in PLANNING_RULES["window_open"]
+    assert "from memory" in PLANNING_RULES["window_closing"] and "common practice" in PLANNING_RULES["window_closing"]
+    assert "common practice" in PLANNING_RULES["window_ahead"]
+    assert "Craig" in PLANNING_RULES["window_passed"]
+
+
+def test_months_since_event_and_months_to_peak():
+    # Four stage-4 analogues (peak 40 producing months after the stage-2 end) and one well
+    # 10 months into stage 3: estimate = median analogue duration - 10, within the
+    # detection tolerance of the dates.
+    n = 150
+    wells = [_table(f"A{k}", _noisy(_shape(n, 700.0, 30, 15, 40), 0.04, 20 + k)) for k in range(4)]
+    wells.append(_table("B", _noisy(_shape(n, 700.0, n - 26, 15, 40), 0.04, 30)))
+    out = track_wells(pd.concat(wells, ignore_index=True), None, None)
+    b = _row(out, "B")
+    assert b["stage"] == 3
+    assert b["months_since_event"] == pytest.approx(10.0, abs=3.0)
+    assert b["months_to_gor_peak_est"] == pytest.approx(30.0, abs=6.0)
+    a = _row(out, "A0")
+    assert a["months_to_gor_peak_est"] == 0.0
+    # peak at month index 85 by construction; the stand-in's top is flat (quadratic
+    # decline: the GOR is within 1.5 % of the peak over +-4 months), so allow 6 months
+    assert a["months_since_event"] == pytest.approx(n - 1 - 85, abs=6.0)
+
+
+# ---------------------------------------------------------------------------------------
+# accuracy on the material-balance well model (fixed seed, smaller than the script)
+# ---------------------------------------------------------------------------------------
+@pytest.fixture(scope="module")
+def accuracy():
+    from scripts.stage_accuracy import measure
+
+    return measure(240, seed=11)
+
+
+def test_accuracy_stage_at_end_of_history(accuracy):
+    # Issue 5 target: stage at the end of history correct for >= 90 % of wells.
+    assert accuracy["stage_correct"] >= 0.90
+
+
+def test_accuracy_no_peak_declared_before_the_peak(accuracy):
+    # Issue 5 target: no peak declared in >= 95 % of wells that have not reached one.
+    assert accuracy["no_false_peak"] >= 0.95
+
+
+def test_accuracy_bubble_point_month_with_surveys(accuracy):
+    # Issue 5: bubble-point month within 3 months where surveys exist (no numeric target
+    # given; 70 % is our floor, measured 74 % on the script's 600-well field).
+    assert accuracy["bp_within_3_surveys"] >= 0.70
+
+
+@pytest.mark.xfail(strict=True, reason="target not met: synthetic GOR peaks are flat in time "
+                   "(GOR within 0.2 % over +-6 months); measured about 40 %, see readme")
+def test_accuracy_gor_peak_month_within_3_months(accuracy):
+    # Issue 5 target: GOR peak month within 3 months for >= 80 % of wells past the peak.
+    assert accuracy["peak_within_3"] >= 0.80
