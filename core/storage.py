@@ -92,7 +92,7 @@ _FRAME_FORMAT = "parquet-1"
 OVERRIDE_ENTRY_TYPES = ("set", "cleared")
 FLAG_ENTRY_TYPES = ("set", "cleared")
 FLAG_SCOPES = ("well", "unit")
-_RUN_FRAMES = ("wells", "monthly", "units", "load_report", "candidates")
+_RUN_FRAMES = ("wells", "monthly", "units", "load_report", "candidates", "stages", "fits", "fluids")
 _DATASET_FRAMES = ("production", "wells", "report")
 
 
@@ -154,8 +154,13 @@ def default_data_folder() -> Path:
 # --------------------------------------------------------------------------- values as JSON
 
 
-def _to_tree(v: Any) -> Any:
-    """Python value -> JSON-able tree with tags, so that decoding gives the same value back."""
+def _to_tree(v: Any, lenient: bool = False) -> Any:
+    """Python value -> JSON-able tree with tags, so that decoding gives the same value back.
+
+    ``lenient``: a value of another type becomes its text instead of raising.
+    """
+    if lenient:
+        return _to_tree(_sanitize(v))
     if v is None or isinstance(v, (bool, str)):
         return v
     if isinstance(v, np.bool_):
@@ -190,6 +195,23 @@ def _to_tree(v: Any) -> Any:
     raise TypeError(f"cannot store a value of type {type(v).__name__}: {v!r}")
 
 
+def _sanitize(v: Any) -> Any:
+    """Replace values of types :func:`_to_tree` does not know by their text."""
+    if isinstance(v, tuple):
+        return tuple(_sanitize(x) for x in v)
+    if isinstance(v, (list, np.ndarray)):
+        return [_sanitize(x) for x in list(v)]
+    if isinstance(v, Mapping):
+        return {(k if isinstance(k, (str, int, float, bool)) else str(k)): _sanitize(x) for k, x in v.items()}
+    if dataclasses.is_dataclass(v) and not isinstance(v, type):
+        return {f.name: _sanitize(getattr(v, f.name)) for f in dataclasses.fields(v)}
+    try:
+        _to_tree(v)
+        return v
+    except TypeError:
+        return str(v)
+
+
 def _from_tree(t: Any) -> Any:
     if isinstance(t, list):
         return [_from_tree(x) for x in t]
@@ -220,9 +242,12 @@ def _freeze(k: Any) -> Any:
     return tuple(_freeze(x) for x in k) if isinstance(k, list) else k
 
 
-def dumps_value(v: Any) -> str:
-    """Encode a value (numbers, text, months, tuples, dicts, NA ...) as tagged JSON."""
-    return json.dumps(_to_tree(v), ensure_ascii=False, allow_nan=False, separators=(",", ":"))
+def dumps_value(v: Any, *, lenient: bool = False) -> str:
+    """Encode a value (numbers, text, months, tuples, dicts, NA ...) as tagged JSON.
+
+    ``lenient=True`` stores values of other types as their text instead of raising.
+    """
+    return json.dumps(_to_tree(v, lenient), ensure_ascii=False, allow_nan=False, separators=(",", ":"))
 
 
 def loads_value(s: str | None) -> Any:
@@ -461,6 +486,11 @@ class StoredRun:
     units: pd.DataFrame | None
     load_report: pd.DataFrame | None
     candidates: pd.DataFrame | None
+    stages: pd.DataFrame | None = None
+    fits: pd.DataFrame | None = None
+    fluids: pd.DataFrame | None = None
+    summary: dict = dataclasses.field(default_factory=dict)
+    timings: dict = dataclasses.field(default_factory=dict)
 
     def run_settings(self) -> Any:
         """The settings as a ``core.run.RunSettings`` (fields it does not know are left out)."""
@@ -773,8 +803,9 @@ class Store:
         Parameters
         ----------
         result : RunResult
-            Its ``wells``, ``monthly``, ``units``, ``load_report``, ``candidates`` tables,
-            ``settings`` (dataclass or dict) and ``version`` are kept.
+            Its ``wells``, ``monthly``, ``units``, ``load_report``, ``candidates``, ``stages``,
+            ``fits``, ``fluids`` tables (those present), ``settings`` (dataclass or dict),
+            ``version``, ``inputs``, ``summary`` and ``timings`` are kept.
         field : str
             Field name (see :func:`field_key`); created on first use.
         load : LoadResult, optional
@@ -787,7 +818,8 @@ class Store:
             What the run was made from (file names, options); kept as JSON. The ids of the
             field's effective overrides at save time are added as ``override_entry_ids``.
         as_of_month : month, optional
-            Defaults to ``settings.as_of_month``, else the last month of ``load.production``.
+            Defaults to ``result.as_of``, then ``settings.as_of``, else the last month of
+            ``load.production``.
 
         Returns
         -------
@@ -800,13 +832,19 @@ class Store:
         author = _text("author", author, required=False)
         note = _text("note", note, required=False)
         settings = getattr(result, "settings", None)
-        settings_tree = dumps_value(settings if settings is not None else {})
-        if as_of_month is None:
-            as_of_month = settings.get("as_of_month") if isinstance(settings, Mapping) else getattr(settings, "as_of_month", None)
+        settings_tree = dumps_value(settings if settings is not None else {}, lenient=True)
+        for source, names in ((result, ("as_of",)), (settings, ("as_of", "as_of_month"))):
+            for n in names:
+                if as_of_month is None:
+                    as_of_month = source.get(n) if isinstance(source, Mapping) else getattr(source, n, None)
         if as_of_month is None and load is not None and "month" in load.production.columns and len(load.production):
             as_of_month = load.production["month"].max()
         version = str(getattr(result, "version", None) or _PROGRAM_VERSION)
-        inputs_d = dict(inputs or {})
+        inputs_d = {**dict(getattr(result, "inputs", None) or {}), **dict(inputs or {})}
+        extras = {
+            "summary": getattr(result, "summary", None) or {},
+            "timings": getattr(result, "timings", None) or {},
+        }
         with self._tx(write=True) as c:
             key = self._ensure_field(c, field)
             if load is not None:
@@ -821,7 +859,8 @@ class Store:
                 T_RUNS.insert().values(
                     field_key=key, dataset_id=dataset_id, created_at=_now(),
                     as_of_month=_as_date(as_of_month), program_version=version,
-                    settings_json=settings_tree, inputs_json=dumps_value(inputs_d),
+                    settings_json=settings_tree,
+                    inputs_json=dumps_value({"inputs": inputs_d, **extras}, lenient=True),
                     author=author, note=note, n_wells=int(len(result.wells)),
                 )
             )
@@ -838,11 +877,13 @@ class Store:
                 raise StoreError(f"no run with id {run_id} in {self.location}")
             frames = {n: self._get_frame(c, "run", r.id, n) for n in _RUN_FRAMES}
         settings = loads_value(r.settings_json)
+        rec = loads_value(r.inputs_json)
         return StoredRun(
             id=int(r.id), field_key=r.field_key, dataset_id=r.dataset_id, created_at=_ts(r.created_at),
             as_of_month=_month(r.as_of_month), version=r.program_version,
             settings=settings if isinstance(settings, dict) else {"value": settings},
-            inputs=loads_value(r.inputs_json), author=r.author, note=r.note, **frames,
+            inputs=rec.get("inputs", {}), summary=rec.get("summary", {}), timings=rec.get("timings", {}),
+            author=r.author, note=r.note, **frames,
         )
 
     def latest_run(self, field: str) -> StoredRun | None:
