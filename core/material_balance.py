@@ -15,6 +15,7 @@ unless ``n_stb`` is given.
 
 from __future__ import annotations
 
+from bisect import bisect_right
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -657,17 +658,35 @@ def _muskat(pvt: PvtTable, relperm: CoreyGasOil, grid: np.ndarray, i_b: int, r: 
     r = r.copy()
     gp = gp.copy()
 
+    # Scalar interpolation on plain lists (the integrator calls rhs thousands of times);
+    # same interpolants as PvtTable.at / PvtTable.slopes: linear in p, Bg through 1/Bg.
+    ok = np.isfinite(pvt.bg_bbl_scf) & np.isfinite(pvt.mu_g_cp)
+    tp = pvt.p_psia[ok].tolist()
+    t_bo = pvt.bo_bbl_stb[ok].tolist()
+    t_rs = pvt.rs_scf_stb[ok].tolist()
+    t_ig = (1.0 / pvt.bg_bbl_scf[ok]).tolist()
+    t_mo = pvt.mu_o_cp[ok].tolist()
+    t_mg = pvt.mu_g_cp[ok].tolist()
+    n_tab = len(tp)
+
     def rhs(p: float, y: np.ndarray) -> np.ndarray:
-        x = y[0]
-        pr = pvt.at(p)
-        sl = pvt.slopes(p)
-        bo, rs, bg, mu_o, mu_g = (float(pr[k]) for k in ("bo", "rs", "bg", "mu_o", "mu_g"))
-        dbo, drs, dinv_bg = float(sl["dbo"]), float(sl["drs"]), float(sl["dinv_bg"])
+        x = float(y[0])
+        i = min(max(bisect_right(tp, p) - 1, 0), n_tab - 2)
+        h = tp[i + 1] - tp[i]
+        f = (p - tp[i]) / h
+        dbo = (t_bo[i + 1] - t_bo[i]) / h
+        drs = (t_rs[i + 1] - t_rs[i]) / h
+        dinv_bg = (t_ig[i + 1] - t_ig[i]) / h
+        bo = t_bo[i] + f * (t_bo[i + 1] - t_bo[i])
+        rs = t_rs[i] + f * (t_rs[i + 1] - t_rs[i])
+        bg = 1.0 / (t_ig[i] + f * (t_ig[i + 1] - t_ig[i]))
+        mu_o = t_mo[i] + f * (t_mo[i + 1] - t_mo[i])
+        mu_g = t_mg[i] + f * (t_mg[i + 1] - t_mg[i])
         dpi = pi - p
         v = 1.0 - cf * dpi
         w = swi * (1.0 + cw * dpi)
         sg = min(max((v - w - x) / v, 0.0), 1.0)
-        krg, kro = relperm(sg)
+        krg, kro = relperm.fast(sg)
         k = float(krg) / max(float(kro), _KRO_FLOOR)
         m = mu_o / mu_g
         # dV/dp = cf, dW/dp = -Swi cw

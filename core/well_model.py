@@ -542,6 +542,7 @@ def synthetic_field(
     workover_share: float = 0.15,
     survey_share: float = 0.7,
     stage_weights: tuple[float, float, float, float] = (0.2, 0.25, 0.3, 0.25),
+    non_oil_share: float = 0.0,
 ) -> SyntheticField:
     """A field of solution-gas-drive oil wells at all four depletion stages, with answers.
 
@@ -570,6 +571,10 @@ def synthetic_field(
         Target share of wells ending in stage 1..4. Each well's productivity-to-volume ratio
         J/N is chosen so that its history ends at a drawn point of its depletion path inside
         the drawn stage (the path itself is pure material balance).
+    non_oil_share : float, optional
+        Share of wells simulated as gas-condensate (initial GOR 4,000-12,000 scf/STB) or
+        wet-gas (25,000-90,000 scf/STB) wells by :func:`simulate_gas_well`; their truth has
+        ``fluid`` set and ``final_stage`` NA. Default 0 (all solution-gas-drive oil wells).
 
     Returns
     -------
@@ -591,7 +596,9 @@ def synthetic_field(
     _check_knobs(gor_noise[1], oil_noise, shut_in_prob, low_uptime_prob, 1.5, 30.0, 0.01, 0.005)
     check_range("gor_noise", gor_noise, 0.0, 1.0)
     end = pd.Timestamp(end_month).to_period("M").to_timestamp()
+    check_range("non_oil_share", non_oil_share, 0.0, 1.0)
     rng = np.random.default_rng(seed)
+    rng_gas = np.random.default_rng([int(seed), 1])  # own stream: oil wells unchanged by the option
     curves = [depletion_curve(f) for f in fluids]
     ndig = max(3, len(str(n_wells)))
 
@@ -605,6 +612,22 @@ def synthetic_field(
         fl = curve.fluid
         n_months = int(rng.integers(int(round(min_years * 12)), int(round(max_years * 12)) + 1))
         start = end - pd.DateOffset(months=n_months - 1)
+        if non_oil_share > 0 and rng_gas.random() < non_oil_share:
+            wet = rng_gas.random() < 0.4
+            gw = simulate_gas_well(
+                well_id, start_month=start, n_months=n_months, qi_mcf_d=float(rng_gas.uniform(1500.0, 8000.0)),
+                di_1_yr=float(rng_gas.uniform(0.2, 0.6)), b=float(rng_gas.uniform(0.5, 1.1)),
+                initial_gor_scf_stb=float(rng_gas.uniform(25000.0, 90000.0) if wet else rng_gas.uniform(4000.0, 12000.0)),
+                gor_rise_per_yr=float(rng_gas.uniform(0.0, 0.06)), api=float(rng_gas.uniform(55.0, 65.0) if wet else
+                                                                             rng_gas.uniform(45.0, 55.0)),
+                gamma_g=float(rng_gas.uniform(0.62, 0.8)), unit=unit, fluid="wet_gas" if wet else "gas_condensate",
+                seed=int(rng_gas.integers(0, 2**31 - 1)), survey_every_months=int(rng_gas.integers(12, 37)),
+            )
+            for c in MONTHLY_COLUMNS:
+                cols[c].append(gw.monthly[c].to_numpy())
+            headers.append(gw.header)
+            truths.append(gw.truth)
+            continue
         # target end point on the path: a stage, then a position inside it
         stage = int(rng.choice(4, p=w)) + 1
         bounds = [0.0, curve.r_bubble, curve.r_stage2_end, curve.r_gor_peak, curve.r[-1]]

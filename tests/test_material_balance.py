@@ -213,12 +213,12 @@ def test_predictor_matches_textbook_muskat_without_compressibility():
     # Muskat (1945) in the textbook form (check-values 5.1), starting at the bubble point
     # with cf = cw = 0; our predictor (both methods) must reproduce it within 0.5 %.
     pvt = ahmed_tarner_example_pvt()
-    ps, r_ref = _muskat_textbook(pvt, COREY_51, 2100.0, 1300.0, 0.15, n=1600)
+    ps, r_ref = _muskat_textbook(pvt, COREY_51, 2100.0, 1300.0, 0.15, n=400)
     for method in ("tarner", "muskat"):
         pred = predict_depletion(pvt, COREY_51, pi_psia=2100.0, p_abandon_psia=1300.0, swi=0.15, cf_1_psi=0.0,
                                  cw_1_psi=0.0, dp_psia=5.0, method=method)
         r = np.interp(ps[::-1], pred.table["p_psia"].to_numpy()[::-1], pred.table["np_over_n"].to_numpy()[::-1])
-        assert_allclose(r[::-1][200:], r_ref[200:], rtol=5e-3)
+        assert_allclose(r[::-1][50:], r_ref[50:], rtol=5e-3)
 
 
 # --------------------------------------------------------------------------------------

@@ -196,3 +196,18 @@ def test_sample_generator_is_deterministic_and_files_are_current(tmp_path):
     span = p1.assign(m=months).groupby("Well")["m"].agg(["min", "max", "size"])
     assert span["size"].between(24, 240).all()
     assert set(oil["final_stage"]) == {1, 2, 3, 4}
+
+
+def test_synthetic_field_with_non_oil_wells():
+    base = synthetic_field(60, seed=9)
+    f = synthetic_field(60, seed=9, non_oil_share=0.2)
+    gas = f.truth[f.truth["fluid"] != "black_oil"]
+    assert 4 <= len(gas) <= 25
+    assert gas["final_stage"].isna().all()
+    assert set(gas["fluid"]) <= {"gas_condensate", "wet_gas"}
+    gor0 = f.production.groupby("well_id").head(6).groupby("well_id")[["oil_bbl", "gas_mcf"]].sum()
+    g = 1000 * gor0["gas_mcf"] / gor0["oil_bbl"]
+    assert (g.loc[gas["well_id"]] > 3300).all()
+    assert f.wells.loc[f.wells["well_id"].isin(gas["well_id"]), "bubble_point_psia"].isna().all()
+    # the option leaves the field's other draws alone when off
+    pd.testing.assert_frame_equal(base.truth, synthetic_field(60, seed=9, non_oil_share=0.0).truth)
