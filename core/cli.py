@@ -27,6 +27,10 @@ EXIT_OK = 0
 EXIT_INTERNAL = 1
 EXIT_INPUT = 2
 
+#: Largest input file the command reads by default [MiB] (a batch job reads big files; the
+#: dashboard's upload limit is separate).
+DEFAULT_MAX_FILE_MB = 4096.0
+
 _DESCRIPTION = (
     "Depletion Desk batch command. Reads monthly production per well, fits Arps declines, "
     "forecasts each well to its economic limit, places each well and reservoir unit in the "
@@ -83,6 +87,7 @@ def build_parser() -> argparse.ArgumentParser:
 
     e = f.add_argument_group("economic limit (give a rate, or prices and costs; default %g bbl/d)" % DEFAULT_ECON_LIMIT_BOPD)
     e.add_argument("--econ-limit-bopd", type=float, metavar="RATE", help=f"economic limit as an oil rate [bbl/d]. Default {DEFAULT_ECON_LIMIT_BOPD:g} when no prices are given")
+    e.add_argument("--econ-limit-mcfd", type=float, metavar="RATE", help="economic limit of wells forecast on gas only (gas and condensate wells) [Mcf/d]. Default: none (the horizon caps them)")
     e.add_argument("--oil-price", type=float, metavar="USD", help="oil price [$/bbl]; with --opex-per-month and --nri it sets the economic limit. Default: none")
     e.add_argument("--gas-price", type=float, metavar="USD", help="gas price [$/Mcf], credited at the well's recent GOR. Default: none (no gas credit)")
     e.add_argument("--opex-per-month", type=float, metavar="USD", help="gross operating cost per well and month [$/month]. Default: none")
@@ -99,6 +104,8 @@ def build_parser() -> argparse.ArgumentParser:
 
     i = f.add_argument_group("input interpretation")
     i.add_argument("--units", choices=("field", "metric"), default="field", help="unit system of the input (outputs are always field units: bbl, Mcf, psia). Default field")
+    i.add_argument("--pressure-kind", choices=("average_reservoir", "static_bhp"), default="average_reservoir", help="what the pressure column holds [psia]: average reservoir pressure or static bottom-hole pressure. Default average_reservoir")
+    i.add_argument("--max-file-mb", type=float, default=DEFAULT_MAX_FILE_MB, metavar="MB", help=f"largest input file accepted [MiB]. Default {DEFAULT_MAX_FILE_MB:g}")
     i.add_argument("--unit-column", metavar="NAME", help="input column holding the reservoir unit. Default: recognised from the header")
 
     s = f.add_argument_group("store and output")
@@ -202,6 +209,7 @@ def _settings(args: argparse.Namespace):
 
     return RunSettings(
         econ_limit_bopd=args.econ_limit_bopd,
+        econ_limit_mcfd=args.econ_limit_mcfd,
         oil_price=args.oil_price,
         gas_price=args.gas_price,
         opex_per_month=args.opex_per_month,
@@ -265,7 +273,12 @@ def _forecast(args: argparse.Namespace, out: TextIO, err: TextIO) -> int:
             from core.run import load_inputs, run_field
 
             bar(0.0, "reading the production file")
-            load = load_inputs(args.input, wells_path=args.wells, settings=settings, sheet=args.sheet)
+            if not args.max_file_mb > 0:
+                raise InputError(f"--max-file-mb must be positive, got {args.max_file_mb:g}")
+            load = load_inputs(
+                args.input, wells_path=args.wells, settings=settings, sheet=args.sheet,
+                pressure_kind=args.pressure_kind, max_bytes=int(args.max_file_mb * 2**20),
+            )
             phase = "run"
             result = run_field(load, settings=settings, progress=_scaled(bar, 0.05, 0.85))
             phase = "export"

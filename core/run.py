@@ -72,6 +72,14 @@ WELLS_EXTRA_COLUMNS = [
     "months_produced",
     "last_oil_rate_bopd",
     "remaining_gas_mcf",
+    "forecast_end_reason",
+    "forecast_note",
+    "uptime_fraction",
+    "terminal_switch_month",
+    "fitted_model",
+    "gas_method",
+    "fit_status",
+    "fit_regime_source",
     "fit_months_used",
     "fit_months_excluded",
     "fit_months_down_weighted",
@@ -175,6 +183,9 @@ class RunSettings:
     econ_limit_bopd : float, optional
         Economic limit as an oil rate. [bbl/d] Give this *or* the economic inputs below;
         with neither, :data:`DEFAULT_ECON_LIMIT_BOPD` is used.
+    econ_limit_mcfd : float, optional
+        Economic limit of a well forecast on gas only (a gas or condensate well). [Mcf/d]
+        Default none: the horizon caps such forecasts.
     oil_price : float, optional
         Oil price. [$/bbl]
     gas_price : float, optional
@@ -205,6 +216,7 @@ class RunSettings:
     """
 
     econ_limit_bopd: float | None = None
+    econ_limit_mcfd: float | None = None
     oil_price: float | None = None
     gas_price: float | None = None
     opex_per_month: float | None = None
@@ -228,6 +240,8 @@ class RunSettings:
             check_range("horizon_years", self.horizon_years, 0.0, 200.0, unit="yr", lo_open=True)
             check_range("wi", self.wi, 0.0, 1.0, lo_open=True)
             check_range("severance_tax", self.severance_tax, 0.0, 1.0, hi_open=True)
+            if self.econ_limit_mcfd is not None:
+                check_range("econ_limit_mcfd", self.econ_limit_mcfd, 0.0, None, unit="Mcf/d", lo_open=True)
             if self.workers is not None:
                 check_range("workers", self.workers, 1, 512)
             econ = [self.oil_price, self.opex_per_month, self.nri]
@@ -350,36 +364,6 @@ def _month_start(s: pd.Series) -> pd.Series:
     return v.dt.to_period("M").dt.to_timestamp().astype("datetime64[ns]")
 
 
-def economic_limit_bopd(settings: RunSettings, gor_scf_stb: Any = 0.0) -> np.ndarray:
-    """Economic-limit oil rate per well [bbl/d] from the run settings.
-
-    A rate given directly applies to every well. From prices and costs, the standard reserves
-    form of :func:`core.economics.economic_limit_rate` is used with the well's recent GOR to
-    credit gas revenue (common practice): q_EL = WI OPEX / (P_eff NRI (1 - tx)) per month,
-    P_eff = P_oil + GOR/1000 P_gas.
-    """
-    gor = np.nan_to_num(np.asarray(gor_scf_stb, dtype=float), nan=0.0, posinf=0.0, neginf=0.0)
-    gor = np.clip(gor, 0.0, None)
-    if settings.econ_limit_bopd is not None:
-        return np.full(gor.shape, float(settings.econ_limit_bopd))
-    if not settings.uses_economics:
-        return np.full(gor.shape, DEFAULT_ECON_LIMIT_BOPD)
-    from core.economics import economic_limit_rate
-
-    return np.broadcast_to(
-        economic_limit_rate(
-            oil_price_per_bbl=settings.oil_price,
-            opex_per_month=settings.opex_per_month,
-            working_interest=settings.wi,
-            net_revenue_interest=settings.nri,
-            severance_tax=settings.severance_tax,
-            gor_scf_stb=gor if settings.gas_price else 0.0,
-            gas_price_per_mcf=settings.gas_price or 0.0,
-        ),
-        gor.shape,
-    ).astype(float)
-
-
 def econ_limit_text(settings: RunSettings) -> str:
     """One-line description of the economic limit the run used."""
     if settings.econ_limit_bopd is not None:
@@ -394,12 +378,11 @@ def econ_limit_text(settings: RunSettings) -> str:
 
 
 def _actuals_per_well(prod: pd.DataFrame) -> pd.DataFrame:
-    """First/last month, cumulatives, recent rate and GOR per well (vectorised)."""
+    """First/last month, months produced, cumulatives and last calendar-day rate per well."""
+    cols = ["well_id", "first_month", "last_month", "months_produced", "cum_oil_bbl", "cum_gas_mcf",
+            "cum_water_bbl", "last_oil_rate_bopd"]
     if prod.empty:
-        return pd.DataFrame(
-            columns=["well_id", "first_month", "last_month", "months_produced", "cum_oil_bbl", "cum_gas_mcf",
-                     "cum_water_bbl", "last_oil_rate_bopd", "recent_gor_scf_stb"]
-        )
+        return pd.DataFrame(columns=cols)
     g = prod.groupby("well_id", sort=False, observed=True)
     out = pd.DataFrame(
         {
@@ -409,17 +392,11 @@ def _actuals_per_well(prod: pd.DataFrame) -> pd.DataFrame:
             "cum_oil_bbl": g["cum_oil_bbl"].last(),
             "cum_gas_mcf": g["cum_gas_mcf"].last() if "cum_gas_mcf" in prod else np.nan,
             "cum_water_bbl": g["cum_water_bbl"].last() if "cum_water_bbl" in prod else np.nan,
-            "last_oil_rate_bopd": g["oil_rate_bbl_d"].last() if "oil_rate_bbl_d" in prod else np.nan,
+            "last_oil_rate_bopd": g["oil_rate_cal_bbl_d"].last() if "oil_rate_cal_bbl_d" in prod else np.nan,
         }
     )
-    # recent GOR: gas over oil in the last 6 months of each well (scf/STB)
-    tail = prod[["well_id", "oil_bbl", "gas_mcf"]].groupby("well_id", sort=False, observed=True).tail(6)
-    tg = tail.groupby("well_id", sort=False, observed=True)[["oil_bbl", "gas_mcf"]].sum(min_count=1)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        gor = 1000.0 * tg["gas_mcf"] / tg["oil_bbl"].where(tg["oil_bbl"] > 0)
-    out["recent_gor_scf_stb"] = gor.reindex(out.index)
     out.index.name = "well_id"
-    return out.reset_index()
+    return out.reset_index()[cols]
 
 
 def _status_text(s: Any) -> str:
@@ -437,20 +414,38 @@ def load_inputs(
     wells_path: str | Path | None = None,
     settings: RunSettings,
     sheet: str | None = None,
+    pressure_kind: str = "average_reservoir",
+    max_bytes: int | None = None,
 ) -> Any:
     """Load a production file (and optional well-header file) with the run's input settings.
 
-    Returns the loader's ``LoadResult``. Raises :class:`InputError` when a file cannot be read.
+    Parameters
+    ----------
+    production_path, wells_path : path
+        Production file and optional well-header file (CSV or XLSX).
+    settings : RunSettings
+        ``units`` and ``unit_column`` are used here.
+    sheet : str, optional
+        Worksheet of an XLSX production file.
+    pressure_kind : {"average_reservoir", "static_bhp"}
+        What the pressure column holds.
+    max_bytes : int, optional
+        Largest file accepted [bytes]; default the loader's limit.
+
+    Returns the loader's ``LoadResult``. Raises :class:`InputError` when a file cannot be used.
     """
     from core.production import load_production
 
-    return load_production(
-        production_path,
-        wells_path=wells_path,
+    kwargs: dict[str, Any] = dict(
+        sheet=sheet,
         units=settings.units,
         unit_column=settings.unit_column,
-        sheet=sheet,
+        well_header=None if wells_path is None else Path(wells_path),
+        pressure_kind=pressure_kind,
     )
+    if max_bytes is not None:
+        kwargs["max_bytes"] = int(max_bytes)
+    return load_production(Path(production_path), **kwargs)
 
 
 def run_from_files(
@@ -460,10 +455,15 @@ def run_from_files(
     settings: RunSettings,
     overrides: Mapping[str, Any] | None = None,
     sheet: str | None = None,
+    pressure_kind: str = "average_reservoir",
+    max_bytes: int | None = None,
     progress: ProgressCallback | None = None,
 ) -> RunResult:
     """Load the files and run: :func:`load_inputs` then :func:`run_field` (used by the CLI)."""
-    load = load_inputs(production_path, wells_path=wells_path, settings=settings, sheet=sheet)
+    load = load_inputs(
+        production_path, wells_path=wells_path, settings=settings, sheet=sheet,
+        pressure_kind=pressure_kind, max_bytes=max_bytes,
+    )
     return run_field(load, settings=settings, overrides=overrides, progress=progress)
 
 
@@ -533,11 +533,7 @@ def run_field(
     timings["stages"] = time.perf_counter() - t
 
     actual = _actuals_per_well(prod)
-    limits = pd.Series(
-        economic_limit_bopd(settings, actual["recent_gor_scf_stb"].to_numpy(dtype=float)),
-        index=actual["well_id"].to_numpy(),
-    )
-    dsettings = _decline_settings(settings, limits)
+    dsettings = decline_settings(settings)
 
     prog(0.25, "fitting Arps declines")
     t = time.perf_counter()
@@ -553,7 +549,7 @@ def run_field(
     prog(0.85, "summarising reservoir units")
     t = time.perf_counter()
     units_stage = track_units(prod, stages, header, as_of=as_of)
-    wells = _assemble_wells(prod, header, report, fluids, stages, ff.fits, fsummary, actual, limits, settings, overrides)
+    wells = _assemble_wells(prod, header, report, fluids, stages, ff.fits, fsummary, actual)
     monthly = _assemble_monthly(prod, fmonthly, actual)
     units = _assemble_units(units_stage, wells)
     summary = _summary(wells, settings, as_of, load)
@@ -588,17 +584,38 @@ def run_field(
     )
 
 
-def _decline_settings(settings: RunSettings, limits: pd.Series) -> Any:
-    """The decline engine's settings from the run settings (economic limit per well)."""
+def decline_settings(settings: RunSettings) -> Any:
+    """The decline engine's :class:`core.decline.DeclineSettings` for these run settings.
+
+    The economic limit goes to the engine either as a rate (``econ_limit_bopd``; the default
+    :data:`DEFAULT_ECON_LIMIT_BOPD` when nothing is given) or as price and cost inputs
+    (:class:`core.economics.EconomicInputs`), from which the engine computes each well's limit
+    with its recent GOR for the gas credit.
+    """
     from core.decline import DeclineSettings
 
-    kwargs = dict(
-        b_max=settings.b_max,
-        terminal_decline=settings.terminal_decline,
-        horizon_years=settings.horizon_years,
+    kwargs: dict[str, Any] = dict(
+        b_max=float(settings.b_max),
+        terminal_decline_effective=float(settings.terminal_decline),
+        horizon_years=float(settings.horizon_years),
         workers=settings.workers,
-        econ_limit_bopd=limits,
+        econ_limit_mcfd=settings.econ_limit_mcfd,
     )
+    if settings.uses_economics:
+        from core.economics import EconomicInputs
+
+        kwargs["economics"] = EconomicInputs(
+            oil_price_per_bbl=float(settings.oil_price),
+            opex_per_month=float(settings.opex_per_month),
+            working_interest=float(settings.wi),
+            net_revenue_interest=float(settings.nri),
+            severance_tax=float(settings.severance_tax),
+            gas_price_per_mcf=float(settings.gas_price or 0.0),
+        )
+    else:
+        kwargs["econ_limit_bopd"] = float(
+            settings.econ_limit_bopd if settings.econ_limit_bopd is not None else DEFAULT_ECON_LIMIT_BOPD
+        )
     names = {f.name for f in dataclasses.fields(DeclineSettings)}
     return DeclineSettings(**{k: v for k, v in kwargs.items() if k in names})
 
@@ -609,71 +626,73 @@ def _stream_rows(fits: pd.DataFrame, stream: str) -> pd.DataFrame:
     return fits.drop_duplicates("well_id", keep="first").set_index("well_id")
 
 
-def _assemble_wells(prod, header, report, fluids, stages, fits, fsummary, actual, limits, settings, overrides) -> pd.DataFrame:
+def _by_well(df: pd.DataFrame) -> pd.DataFrame:
+    return df.assign(well_id=df["well_id"].astype(str)).drop_duplicates("well_id").set_index("well_id")
+
+
+#: ``forecast_end_reason`` values of :func:`core.forecast.forecast_field` meaning "forecast".
+_FORECAST_REASONS = ("economic_limit", "horizon")
+_BELOW_LIMIT = "below_limit_at_start"
+STATUS_BELOW_LIMIT = "below the economic limit at the as-of month"
+
+
+def _assemble_wells(prod, header, report, fluids, stages, fits, fsummary, actual) -> pd.DataFrame:
     # every well the user gave: header, production, and wells whose every row was rejected
     ids = pd.Index(pd.unique(pd.concat([header["well_id"], prod["well_id"]], ignore_index=True).astype(str)))
-    rej_ids: pd.Index = pd.Index([])
+    rej_ids: pd.Index = pd.Index([], dtype=object)
     if "well_id" in report.columns and len(report):
         r = report.loc[report["well_id"].notna(), "well_id"].astype(str)
+        r = r[r.str.strip() != ""]
         rej_ids = pd.Index(pd.unique(r)).difference(ids)
     ids = ids.append(rej_ids)
     w = pd.DataFrame(index=ids)
     w.index.name = "well_id"
 
-    hdr = header.assign(well_id=header["well_id"].astype(str)).drop_duplicates("well_id").set_index("well_id")
-    act = actual.assign(well_id=actual["well_id"].astype(str)).set_index("well_id")
-    flu = fluids.assign(well_id=fluids["well_id"].astype(str)).drop_duplicates("well_id").set_index("well_id")
-    stg = stages.assign(well_id=stages["well_id"].astype(str)).drop_duplicates("well_id").set_index("well_id")
-    f_oil = _stream_rows(fits.assign(well_id=fits["well_id"].astype(str)), "oil")
-    f_gas = _stream_rows(fits.assign(well_id=fits["well_id"].astype(str)), "gas")
-    fs = fsummary.assign(well_id=fsummary["well_id"].astype(str))
-    fs_oil = _stream_rows(fs, "oil")
-    fs_gas = _stream_rows(fs, "gas")
+    hdr = _by_well(header)
+    act = _by_well(actual)
+    flu = _by_well(fluids)
+    stg = _by_well(stages)
+    fits_s = fits.assign(well_id=fits["well_id"].astype(str))
+    f_oil = _stream_rows(fits_s, "oil")
+    f_gas = _stream_rows(fits_s, "gas")
+    fs = _by_well(fsummary).reindex(ids)
 
     unit_from_prod = prod.groupby("well_id", sort=False, observed=True)["unit"].last()
     unit_from_prod.index = unit_from_prod.index.astype(str)
     w["unit"] = _col(hdr, "unit").reindex(ids)
-    w["unit"] = w["unit"].where(w["unit"].notna(), unit_from_prod.reindex(ids)).fillna("unassigned")
+    w["unit"] = w["unit"].where(w["unit"].notna(), unit_from_prod.reindex(ids)).fillna("unassigned").astype(str)
     w["fluid_type"] = _col(flu, "fluid_type", default="unknown").reindex(ids).fillna("unknown")
 
-    # status: the first reason found along the pipeline, "ok" when the well was forecast
-    fit_status = _col(f_oil, "status", default="").reindex(ids)
-    fc_status = _col(fs_oil, "status", default="").reindex(ids)
-    status = pd.Series(STATUS_OK, index=ids, dtype=object)
+    # status: "ok" when forecast; otherwise the first reason found along the pipeline
     in_prod = ids.isin(act.index)
+    reason = _col(fs, "forecast_end_reason", default="").fillna("").astype(str)
+    fc_txt = _col(fs, "status", default="").map(_status_text)
+    fc_txt = fc_txt.str.replace(r"^not forecast: ", "", regex=True)
+    ok = (in_prod & reason.isin(_FORECAST_REASONS)).to_numpy()
+    below = (in_prod & (reason == _BELOW_LIMIT)).to_numpy()
+    status = pd.Series(STATUS_OK, index=ids, dtype=object)
+    other = ~ok & ~below
+    status[other] = fc_txt[other].where(fc_txt[other] != "", "not forecast")
+    status[below] = STATUS_BELOW_LIMIT
     status[~in_prod] = "no production up to the as-of month"
     status[ids.isin(rej_ids)] = "no usable rows (see load_report)"
-    fs_txt = fit_status.map(_status_text)
-    fc_txt = fc_status.map(_status_text)
-    no_fit = in_prod & ~ids.isin(f_oil.index)
-    status[no_fit] = "not fitted"
-    bad_fit = in_prod & ids.isin(f_oil.index) & (fs_txt != STATUS_OK) & (fs_txt != "")
-    status[bad_fit] = fs_txt[bad_fit]
-    bad_fc = in_prod & (status == STATUS_OK) & (fc_txt != STATUS_OK) & (fc_txt != "")
-    status[bad_fc] = fc_txt[bad_fc]
 
     for c in ("first_month", "last_month", "cum_oil_bbl", "cum_gas_mcf", "cum_water_bbl"):
         w[c] = act[c].reindex(ids) if c in act.columns else np.nan
-    ok = (status == STATUS_OK).to_numpy()
+    has_numbers = ok | below  # wells with a forecast answer (remaining 0 when below the limit)
 
-    def fit_val(*names: str) -> pd.Series:
-        return _col(f_oil, *names).reindex(ids)
-
-    w["model"] = fit_val("model").where(ok)
-    w["fit_start"] = _month_start(fit_val("fit_start"))
-    w["fit_end"] = _month_start(fit_val("fit_end"))
-    w["qi_bopd"] = _finite_or_nan(fit_val("qi", "qi_bbl_d", "qi_bopd")).where(ok)
-    w["di_annual_nominal"] = _finite_or_nan(fit_val("di", "di_per_yr", "di_annual_nominal")).where(ok)
-    w["b"] = _finite_or_nan(fit_val("b")).where(ok)
-    w["terminal_decline_annual_effective"] = pd.Series(settings.terminal_decline, index=ids).where(ok)
-    w["econ_limit_bopd"] = limits.reindex(ids).astype(float)
-    w["remaining_oil_bbl"] = _finite_or_nan(_col(fs_oil, "remaining_oil_bbl", "remaining_bbl", "remaining").reindex(ids)).where(ok)
-    w["eur_oil_bbl"] = _finite_or_nan(_col(fs_oil, "eur_oil_bbl", "eur_bbl", "eur").reindex(ids)).where(ok)
-    w["econ_limit_date"] = _month_start(_col(fs_oil, "econ_limit_date", "econ_limit_month", "end_month").reindex(ids)).where(ok)
-    eur_gas = _col(fs_oil, "eur_gas_mcf").reindex(ids)
-    if eur_gas.isna().all():
-        eur_gas = _col(fs_gas, "eur_gas_mcf", "eur_mcf", "eur").reindex(ids)
-    w["eur_gas_mcf"] = _finite_or_nan(eur_gas)
+    w["model"] = _col(fs, "model", default="").where(ok, "").fillna("")
+    w["fit_start"] = _month_start(_col(fs, "fit_start")).where(ok)
+    w["fit_end"] = _month_start(_col(fs, "fit_end")).where(ok)
+    w["qi_bopd"] = _finite_or_nan(_col(fs, "qi_bopd")).where(ok)
+    w["di_annual_nominal"] = _finite_or_nan(_col(fs, "di_annual_nominal")).where(ok)
+    w["b"] = _finite_or_nan(_col(fs, "b")).where(ok)
+    w["terminal_decline_annual_effective"] = _finite_or_nan(_col(fs, "terminal_decline_annual_effective")).where(ok)
+    w["econ_limit_bopd"] = _finite_or_nan(_col(fs, "econ_limit_bopd"))
+    w["remaining_oil_bbl"] = _finite_or_nan(_col(fs, "remaining_oil_bbl")).where(has_numbers)
+    w["eur_oil_bbl"] = w["cum_oil_bbl"] + w["remaining_oil_bbl"]  # EUR = cumulative + remaining
+    w["econ_limit_date"] = _month_start(_col(fs, "econ_limit_date")).where(has_numbers)
+    w["eur_gas_mcf"] = _finite_or_nan(_col(fs, "eur_gas_mcf")).where(has_numbers)
     for c in ("rsi_scf_stb", "bubble_point_psia"):
         w[c] = _finite_or_nan(_col(stg, c).reindex(ids))
     bp_hdr = _finite_or_nan(_col(hdr, "bubble_point_psia").reindex(ids))
@@ -686,20 +705,34 @@ def _assemble_wells(prod, header, report, fluids, stages, fits, fsummary, actual
     w["passed_gor_peak"] = _col(stg, "passed_gor_peak", default=False).reindex(ids).fillna(False).astype(bool)
     w["planning_status"] = _col(stg, "planning_status", default="not_applicable").reindex(ids).fillna("not_applicable")
 
-    # extras
-    w["months_produced"] = _col(act, "months_produced").reindex(ids)
+    # further columns
+    w["months_produced"] = _finite_or_nan(_col(act, "months_produced").reindex(ids))
     w["last_oil_rate_bopd"] = _finite_or_nan(_col(act, "last_oil_rate_bopd").reindex(ids))
-    w["remaining_gas_mcf"] = _finite_or_nan(_col(fs_oil, "remaining_gas_mcf").reindex(ids))
-    w["fit_months_used"] = _col(f_oil, "months_used", "n_used").reindex(ids)
-    w["fit_months_excluded"] = _col(f_oil, "months_excluded", "n_excluded").reindex(ids)
-    w["fit_months_down_weighted"] = _col(f_oil, "months_down_weighted", "n_down_weighted").reindex(ids)
-    w["fit_rmse_log"] = _finite_or_nan(_col(f_oil, "rmse_log", "rmse").reindex(ids))
-    w["fit_criterion"] = _col(f_oil, "criterion", default="").reindex(ids)
-    w["gas_model"] = _col(f_gas, "model", default="").reindex(ids)
+    w["remaining_gas_mcf"] = _finite_or_nan(_col(fs, "remaining_gas_mcf")).where(has_numbers)
+    w["forecast_end_reason"] = reason.where(in_prod, "")
+    w["forecast_note"] = fc_txt.where(ok & (fc_txt != STATUS_OK).to_numpy(), "")
+    w["uptime_fraction"] = _finite_or_nan(_col(fs, "uptime_fraction"))
+    w["terminal_switch_month"] = _month_start(_col(fs, "terminal_switch_month")).where(ok)
+    w["fitted_model"] = _col(fs, "fitted_model", default="").where(ok, "").fillna("")
+    w["gas_method"] = _col(fs, "gas_method", default="").fillna("")
+    w["fit_status"] = _col(f_oil, "status", default="").reindex(ids).map(_status_text)
+    w["fit_regime_source"] = _col(f_oil, "regime_source", default="").reindex(ids).fillna("")
+    w["fit_months_used"] = _finite_or_nan(_col(f_oil, "n_months_used").reindex(ids))
+    w["fit_months_excluded"] = _finite_or_nan(_col(f_oil, "n_months_excluded").reindex(ids))
+    w["fit_months_down_weighted"] = _finite_or_nan(_col(f_oil, "n_months_down_weighted").reindex(ids))
+    w["fit_rmse_log"] = _finite_or_nan(_col(f_oil, "rmse_log").reindex(ids))
+    w["fit_criterion"] = _col(f_oil, "criterion", default="").reindex(ids).fillna("")
+    w["gas_model"] = _col(f_gas, "model", default="").reindex(ids).fillna("")
     w["gas_qi_mcf_d"] = _finite_or_nan(_col(f_gas, "qi").reindex(ids))
     w["gas_di_annual_nominal"] = _finite_or_nan(_col(f_gas, "di").reindex(ids))
     w["gas_b"] = _finite_or_nan(_col(f_gas, "b").reindex(ids))
-    w["override"] = _col(f_oil, "override", default="").reindex(ids).fillna("")
+    ov_oil = _col(f_oil, "override", default="").reindex(ids).fillna("").astype(str)
+    ov_gas = _col(f_gas, "override", default="").reindex(ids).fillna("").astype(str)
+    w["override"] = np.where(
+        (ov_gas != "") & (ov_gas != ov_oil),
+        np.where(ov_oil != "", "oil: " + ov_oil + "; gas: " + ov_gas, "gas: " + ov_gas),
+        ov_oil,
+    )
     w["initial_gor_scf_stb"] = _finite_or_nan(_col(flu, "initial_gor_scf_stb").reindex(ids))
     w["fluid_evidence"] = _col(flu, "fluid_evidence", default="").reindex(ids).fillna("")
     for c in ("stage_reason", "stage_evidence", "planning_rule"):
@@ -708,9 +741,13 @@ def _assemble_wells(prod, header, report, fluids, stages, fits, fsummary, actual
     w["months_to_gor_peak_est"] = _finite_or_nan(_col(stg, "months_to_gor_peak_est").reindex(ids))
     w["regime_start"] = _month_start(_col(stg, "regime_start").reindex(ids))
 
-    # guard: a forecast well must carry finite EUR >= cumulative
-    bad = ok & ~(np.isfinite(w["eur_oil_bbl"].to_numpy(dtype=float)) & np.isfinite(w["remaining_oil_bbl"].to_numpy(dtype=float)))
-    status[bad] = "forecast not finite"
+    # guard (never expected): a forecast well must carry a finite remaining >= 0
+    rem = w["remaining_oil_bbl"].to_numpy(dtype=float)
+    bad = has_numbers & ~(np.isfinite(rem) & (rem >= 0))
+    if bad.any():
+        status[bad] = "forecast rejected: remaining oil not a finite non-negative number"
+        for c in ("remaining_oil_bbl", "eur_oil_bbl", "eur_gas_mcf", "remaining_gas_mcf"):
+            w.loc[bad, c] = np.nan
     w["status"] = status.to_numpy()
     out = w.reset_index()
     return out[WELLS_COLUMNS + WELLS_EXTRA_COLUMNS]
@@ -727,7 +764,7 @@ def _assemble_monthly(prod: pd.DataFrame, fmonthly: pd.DataFrame, actual: pd.Dat
             "oil_bbl": prod["oil_bbl"].to_numpy(dtype=float),
             "gas_mcf": _col(prod, "gas_mcf").to_numpy(dtype=float),
             "water_bbl": _col(prod, "water_bbl").to_numpy(dtype=float),
-            "oil_rate_bopd": _col(prod, "oil_rate_bbl_d").to_numpy(dtype=float),
+            "oil_rate_bopd": _col(prod, "oil_rate_cal_bbl_d").to_numpy(dtype=float),
             "cum_oil_bbl": prod["cum_oil_bbl"].to_numpy(dtype=float),
         }
     )
@@ -772,9 +809,10 @@ def _assemble_units(units_stage: pd.DataFrame, wells: pd.DataFrame) -> pd.DataFr
             "cum_oil_bbl": g["cum_oil_bbl"].sum(min_count=1),
             "cum_gas_mcf": g["cum_gas_mcf"].sum(min_count=1),
             "cum_water_bbl": g["cum_water_bbl"].sum(min_count=1),
-            "remaining_oil_bbl": w["remaining_oil_bbl"].where(ok).groupby(w["unit"]).sum(min_count=1),
-            "eur_oil_bbl": w["eur_oil_bbl"].where(ok).groupby(w["unit"]).sum(min_count=1),
-            "eur_gas_mcf": w["eur_gas_mcf"].where(ok).groupby(w["unit"]).sum(min_count=1),
+            # sums over the wells with an answer: forecast wells and wells already below the limit
+            "remaining_oil_bbl": g["remaining_oil_bbl"].sum(min_count=1),
+            "eur_oil_bbl": g["eur_oil_bbl"].sum(min_count=1),
+            "eur_gas_mcf": g["eur_gas_mcf"].sum(min_count=1),
         }
     )
     us = units_stage.assign(unit=units_stage["unit"].astype(str)).drop_duplicates("unit").set_index("unit")
@@ -824,9 +862,11 @@ def _summary(wells: pd.DataFrame, settings: RunSettings, as_of: pd.Timestamp, lo
         "fluid_types": {str(k): int(v) for k, v in fluid_counts.items()},
         "econ_limit": econ_limit_text(settings),
         "cum_oil_bbl_total": total("cum_oil_bbl"),
-        "eur_oil_bbl_total": total("eur_oil_bbl", ok),
-        "remaining_oil_bbl_total": total("remaining_oil_bbl", ok),
-        "eur_gas_mcf_total": total("eur_gas_mcf", ok),
+        # totals over the wells with an answer (forecast, or already below the limit)
+        "eur_oil_bbl_total": total("eur_oil_bbl"),
+        "remaining_oil_bbl_total": total("remaining_oil_bbl"),
+        "eur_gas_mcf_total": total("eur_gas_mcf"),
+        "wells_below_limit": int((wells["status"] == STATUS_BELOW_LIMIT).sum()),
         "wells_past_gor_peak": int(wells["passed_gor_peak"].astype(bool).sum()),
         "rows_read": int(getattr(load, "rows_read", 0)),
         "rows_rejected": int(getattr(load, "rows_rejected", 0)),

@@ -17,7 +17,7 @@ from core.cli import EXIT_INPUT, EXIT_INTERNAL, EXIT_OK, ProgressBar, build_pars
 from core.validation import InputError
 
 FORECAST_OPTIONS = [
-    "--wells", "--out", "--sheet", "--econ-limit-bopd", "--oil-price", "--gas-price",
+    "--wells", "--out", "--sheet", "--econ-limit-bopd", "--econ-limit-mcfd", "--pressure-kind", "--max-file-mb", "--oil-price", "--gas-price",
     "--opex-per-month", "--nri", "--wi", "--severance-tax", "--as-of", "--b-max",
     "--terminal-decline", "--horizon-years", "--workers", "--units", "--unit-column", "--db",
     "--field-name", "--no-xlsx", "--progress", "--quiet", "--debug",

@@ -1,0 +1,313 @@
+"""The one run (core.run.run_field) and the batch command end to end.
+
+Checks: the output contract (columns, order, types) of wells / forecast_monthly / units;
+every well of the file keeps a row; plausible values (EUR = cumulative + remaining >= cumulative,
+monthly volumes non-negative and summing to the cumulative); no NaN or infinite number in any
+output file; bad rows reported while good wells are still forecast; the run is deterministic
+(twice -> identical tables; the dashboard calls this same function); the economic limit from
+prices against the standard formula; exit codes of the command on real files.
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+import math
+from pathlib import Path
+
+import numpy as np
+import openpyxl
+import pandas as pd
+import pytest
+
+from core.cli import main
+from core.export import FORMULA_TRIGGERS, tables_to_csv_bytes
+from core.run import (
+    MONTHLY_COLUMNS,
+    STATUS_BELOW_LIMIT,
+    STATUS_OK,
+    UNITS_COLUMNS,
+    WELLS_COLUMNS,
+    RunSettings,
+    decline_settings,
+    run_field,
+    run_from_files,
+    load_inputs,
+)
+from core.validation import InputError
+
+ROOT = Path(__file__).resolve().parents[1]
+SAMPLE_PROD = ROOT / "sample_wells" / "production.csv"
+SAMPLE_HEADER = ROOT / "sample_wells" / "well_header.csv"
+
+FLUID_TYPES = {"bitumen", "heavy_oil", "black_oil", "volatile_oil", "gas_condensate", "wet_gas", "dry_gas", "unknown"}
+MODELS = {"exponential", "hyperbolic", "harmonic", "modified_hyperbolic"}
+PLANNING = {"window_ahead", "window_open", "window_closing", "window_passed", "not_applicable"}
+
+# rows injected into the synthetic file (the loader's documented treatments reject them)
+BAD_ROWS = [
+    {"well_id": "SYN-002", "month": "2019-13", "oil_bbl": "100"},  # no such month
+    {"well_id": "SYN-003", "month": "2030-01", "oil_bbl": "n/a"},  # not a number
+    {"well_id": "GHOST-1", "month": "not a date", "oil_bbl": "abc"},  # a well with no usable row
+]
+
+
+@pytest.fixture(scope="module")
+def field_files(tmp_path_factory):
+    from core.well_model import synthetic_field
+
+    d = tmp_path_factory.mktemp("field")
+    f = synthetic_field(16, seed=11)
+    prod = f.production.copy()
+    # a well id a spreadsheet would execute: must be forecast like any other, exported neutralised
+    prod["well_id"] = prod["well_id"].replace({"SYN-004": "=SYN-004"})
+    prod["month"] = prod["month"].dt.strftime("%Y-%m")
+    wells = f.wells.copy()
+    wells["well_id"] = wells["well_id"].replace({"SYN-004": "=SYN-004"})
+    clean = d / "production.csv"
+    prod.to_csv(clean, index=False)
+    header = d / "well_header.csv"
+    wells.to_csv(header, index=False)
+    bad = d / "production_bad.csv"
+    extra = pd.DataFrame(BAD_ROWS).reindex(columns=prod.columns)
+    pd.concat([prod.astype(object), extra], ignore_index=True).to_csv(bad, index=False)
+    return {"clean": clean, "header": header, "bad": bad, "n_wells": prod["well_id"].nunique(), "rows": len(prod)}
+
+
+@pytest.fixture(scope="module")
+def result(field_files):
+    return run_from_files(field_files["clean"], wells_path=field_files["header"], settings=RunSettings(econ_limit_bopd=2.0, workers=1))
+
+
+@pytest.fixture(scope="module")
+def bad_run(field_files, tmp_path_factory):
+    """The batch command on the file with bad rows: (exit code, stdout, stderr, output folder)."""
+    out = tmp_path_factory.mktemp("bad_out")
+    stdout, stderr = io.StringIO(), io.StringIO()
+    code = main(["forecast", str(field_files["bad"]), "--wells", str(field_files["header"]), "--out", str(out),
+                 "--econ-limit-bopd", "2", "--workers", "1"], stdout=stdout, stderr=stderr)
+    return code, stdout.getvalue(), stderr.getvalue(), out
+
+
+# ------------------------------------------------------------------------------ contract
+def test_wells_contract_columns_order_and_types(result):
+    w = result.wells
+    assert list(w.columns[: len(WELLS_COLUMNS)]) == WELLS_COLUMNS
+    assert w["well_id"].is_unique
+    for c in ("first_month", "last_month", "fit_start", "fit_end", "econ_limit_date", "bubble_point_date",
+              "stage2_end_date", "gor_peak_date"):
+        assert pd.api.types.is_datetime64_any_dtype(w[c]), c
+    for c in ("cum_oil_bbl", "cum_gas_mcf", "cum_water_bbl", "qi_bopd", "di_annual_nominal", "b",
+              "terminal_decline_annual_effective", "econ_limit_bopd", "remaining_oil_bbl", "eur_oil_bbl",
+              "eur_gas_mcf", "rsi_scf_stb", "bubble_point_psia", "gor_peak_scf_stb"):
+        assert pd.api.types.is_float_dtype(w[c]), c
+    assert str(w["stage"].dtype) == "Int64"
+    assert w["passed_gor_peak"].dtype == bool
+    assert set(w["fluid_type"]) <= FLUID_TYPES
+    assert set(w["planning_status"]) <= PLANNING
+    ok = w["status"] == STATUS_OK
+    assert set(w.loc[ok, "model"]) <= MODELS
+    assert w["stage"].dropna().between(1, 4).all()
+
+
+def test_monthly_and_units_contract(result):
+    m = result.monthly
+    assert list(m.columns) == MONTHLY_COLUMNS
+    assert pd.api.types.is_datetime64_any_dtype(m["month"])
+    assert set(m["kind"]) <= {"actual", "forecast"}
+    for c in MONTHLY_COLUMNS[3:]:
+        assert pd.api.types.is_float_dtype(m[c]), c
+    assert not m.duplicated(["well_id", "month"]).any()
+    u = result.units
+    assert list(u.columns[: len(UNITS_COLUMNS)]) == UNITS_COLUMNS
+    assert u["unit"].is_unique
+
+
+def test_csv_headers_follow_the_contract(result):
+    files = tables_to_csv_bytes(result)
+    header = lambda name: next(csv.reader(io.StringIO(files[name].decode())))  # noqa: E731
+    assert header("wells.csv")[: len(WELLS_COLUMNS)] == WELLS_COLUMNS
+    assert header("forecast_monthly.csv") == MONTHLY_COLUMNS
+    assert header("units.csv")[: len(UNITS_COLUMNS)] == UNITS_COLUMNS
+
+
+# ------------------------------------------------------------------------------ values
+def test_every_well_has_a_row_and_plausible_values(result, field_files):
+    w = result.wells
+    assert len(w) == field_files["n_wells"]
+    ok = w["status"] == STATUS_OK
+    assert ok.sum() >= 0.75 * len(w), w.loc[~ok, ["well_id", "status"]]
+    f = w[ok]
+    # EUR = cumulative + remaining (definition of EUR, SPE-PRMS 2018 glossary), remaining >= 0
+    np.testing.assert_allclose(f["eur_oil_bbl"], f["cum_oil_bbl"] + f["remaining_oil_bbl"], rtol=1e-9)
+    assert (f["remaining_oil_bbl"] >= 0).all() and (f["eur_oil_bbl"] >= f["cum_oil_bbl"]).all()
+    assert (f["qi_bopd"] > 0).all() and (f["di_annual_nominal"] > 0).all()
+    assert f["b"].between(0, 2).all()
+    # the economic-limit month lies after the as-of month; blank only when the horizon came first
+    reached = f["econ_limit_date"].notna()
+    assert (f.loc[reached, "econ_limit_date"] > result.as_of).all()
+    assert (f.loc[~reached, "forecast_end_reason"] == "horizon").all()
+    assert (f.loc[reached, "forecast_end_reason"] == "economic_limit").all()
+    assert (f["fit_start"] <= f["fit_end"]).all() and (f["fit_end"] <= f["last_month"]).all()
+    # a not-forecast well keeps its row and says why
+    assert (w.loc[~ok, "status"].str.len() > 0).all()
+    below = w["status"] == STATUS_BELOW_LIMIT
+    # below the limit already: nothing remains, EUR = cumulative; otherwise EUR unknown (blank)
+    assert (w.loc[below, "remaining_oil_bbl"] == 0).all()
+    np.testing.assert_allclose(w.loc[below, "eur_oil_bbl"], w.loc[below, "cum_oil_bbl"], rtol=1e-12)
+    assert np.isnan(w.loc[~ok & ~below, "eur_oil_bbl"].to_numpy(dtype=float)).all()
+
+
+def test_monthly_volumes_consistent_with_the_wells_table(result):
+    m, w = result.monthly, result.wells.set_index("well_id")
+    assert (m["oil_bbl"].dropna() >= 0).all()
+    fc = m[m["kind"] == "forecast"]
+    assert (fc["month"] > result.as_of).all()
+    ok = w.index[w["status"] == STATUS_OK]
+    sums = fc.groupby("well_id")["oil_bbl"].sum()
+    # remaining oil = sum of the forecast months (closed-form identity of a monthly table)
+    np.testing.assert_allclose(sums.reindex(ok).fillna(0.0), w.loc[ok, "remaining_oil_bbl"], rtol=1e-6, atol=1e-3)
+    # cumulative at the last forecast month = EUR
+    last = m.groupby("well_id")["cum_oil_bbl"].last()
+    np.testing.assert_allclose(last.reindex(ok), w.loc[ok, "eur_oil_bbl"], rtol=1e-6)
+    # cumulative never falls
+    assert (m.groupby("well_id")["cum_oil_bbl"].diff().dropna() >= -1e-6).all()
+
+
+def test_units_totals_match_the_wells(result):
+    u, w = result.units, result.wells
+    assert u["n_wells"].sum() == len(w)
+    ok = w["status"] == STATUS_OK
+    assert u["eur_oil_bbl"].sum() == pytest.approx(w["eur_oil_bbl"].sum(), rel=1e-12)
+    assert u["remaining_oil_bbl"].sum() == pytest.approx(w["remaining_oil_bbl"].sum(), rel=1e-12)
+    assert u["cum_oil_bbl"].sum() == pytest.approx(w["cum_oil_bbl"].sum(), rel=1e-12)
+    assert u["n_wells_forecast"].sum() == ok.sum()
+    shares = u[["share_stage_1", "share_stage_2", "share_stage_3", "share_stage_4", "share_not_applicable"]].sum(axis=1)
+    np.testing.assert_allclose(shares, 1.0, atol=1e-9)
+
+
+def test_summary_counts(result):
+    s, w = result.summary, result.wells
+    assert s["wells_read"] == len(w)
+    assert s["wells_forecast"] + s["wells_not_forecast"] == len(w)
+    assert sum(s["not_forecast_reasons"].values()) == s["wells_not_forecast"]
+    assert s["wells_past_gor_peak"] == int(w["passed_gor_peak"].sum())
+    assert math.isfinite(s["eur_oil_bbl_total"]) and s["eur_oil_bbl_total"] >= 0
+
+
+def test_run_twice_gives_identical_numbers(result, field_files):
+    # the CLI and the dashboard both call run_field: same inputs must give the same tables
+    load = load_inputs(field_files["clean"], wells_path=field_files["header"], settings=result.settings)
+    again = run_field(load, settings=result.settings)
+    for name in ("wells", "monthly", "units", "load_report"):
+        pd.testing.assert_frame_equal(getattr(result, name), getattr(again, name), check_exact=True)
+
+
+def test_as_of_ignores_later_months(field_files):
+    settings = RunSettings(econ_limit_bopd=2.0, as_of="2024-06", workers=1)
+    res = run_from_files(field_files["clean"], wells_path=field_files["header"], settings=settings)
+    assert res.as_of == pd.Timestamp("2024-06-01")
+    act = res.monthly[res.monthly["kind"] == "actual"]
+    assert act["month"].max() <= pd.Timestamp("2024-06-01")
+    assert (res.monthly.loc[res.monthly["kind"] == "forecast", "month"] > pd.Timestamp("2024-06-01")).all()
+    assert res.inputs["months_after_as_of_ignored"] > 0
+
+
+def test_as_of_before_the_data_is_an_input_error(field_files):
+    with pytest.raises(InputError, match="before the first month"):
+        run_from_files(field_files["clean"], settings=RunSettings(as_of="1950-01"))
+
+
+def test_economic_limit_from_prices():
+    # Standard reserves-practice economic limit (common practice; formula in core/economics.py):
+    # q = WI * OPEX / (P * NRI * (1 - tax)) / 30.4375 d = 1.0 * 3000 / (70 * 0.8 * 0.95) / 30.4375
+    #   = 1.852559... bbl/d (hand calculation).
+    s = RunSettings(oil_price=70.0, opex_per_month=3000.0, nri=0.8, wi=1.0, severance_tax=0.05)
+    ds = decline_settings(s)
+    from core.economics import economic_limit_from_inputs
+
+    q = float(economic_limit_from_inputs(ds.economics))
+    assert q == pytest.approx(3000.0 / (70.0 * 0.8 * 0.95) / 30.4375, rel=1e-12)
+    assert ds.econ_limit_bopd is None
+    assert decline_settings(RunSettings(econ_limit_bopd=3.0)).econ_limit_bopd == 3.0
+
+
+# ------------------------------------------------------------------------------ bad rows
+def test_bad_rows_reported_good_wells_still_forecast(bad_run, result, field_files):
+    code, _, err, out = bad_run
+    assert code == 0, err
+    rep = pd.read_csv(out / "load_report.csv", keep_default_na=False)
+    rejected = rep[rep["action"] == "rejected"]
+    assert len(rejected) >= len(BAD_ROWS)
+    assert set(rejected["row"].astype(int)) >= {field_files["rows"] + 2 + i for i in range(len(BAD_ROWS))}  # header = row 1
+    w = pd.read_csv(out / "wells.csv", keep_default_na=False).set_index("well_id")
+    # the well whose every row was rejected keeps a row that says so
+    assert "GHOST-1" in w.index and w.loc["GHOST-1", "status"] != STATUS_OK
+    # the good wells are forecast as in the clean run
+    good = result.wells.set_index("well_id")
+    ok = ["'" + i if i.startswith("=") else i for i in good.index[good["status"] == STATUS_OK]]
+    assert (w.loc[ok, "status"] == STATUS_OK).all()
+
+
+def test_command_end_to_end_outputs(bad_run):
+    code, text, err, out = bad_run
+    assert code == 0, err
+    for name in ("wells.csv", "forecast_monthly.csv", "units.csv", "load_report.csv", "forecast.xlsx"):
+        assert (out / name).stat().st_size > 0
+    assert "wells read: " in text and "wells forecast: " in text and "total EUR oil" in text
+    assert "wells past the GOR peak" in text
+    # no NaN / inf text and no executable cell in any CSV
+    for name in ("wells.csv", "forecast_monthly.csv", "units.csv", "load_report.csv"):
+        with open(out / name, newline="", encoding="utf-8") as fh:
+            for row in csv.reader(fh):
+                for cell in row:
+                    assert cell.lower() not in {"nan", "inf", "-inf", "<na>", "nat"}, (name, row)
+                    if cell and cell[0] in FORMULA_TRIGGERS:
+                        float(cell)  # only a negative number may start with '-'
+    wells = pd.read_csv(out / "wells.csv", keep_default_na=False)
+    assert "'=SYN-004" in set(wells["well_id"])
+    wb = openpyxl.load_workbook(out / "forecast.xlsx", read_only=True)
+    assert wb.sheetnames[:2] == ["cover", "wells"]
+    cells = [c for ws in wb.worksheets for row in ws.iter_rows() for c in row]
+    assert not any(c.data_type == "f" for c in cells)
+    assert "'=SYN-004" in {c.value for c in cells}
+    wb.close()
+
+
+def test_command_unreadable_file_exit_2(tmp_path):
+    f = tmp_path / "empty.csv"
+    f.write_bytes(b"")
+    stderr = io.StringIO()
+    code = main(["forecast", str(f), "--out", str(tmp_path / "o")], stdout=io.StringIO(), stderr=stderr)
+    assert code == 2
+    assert len(stderr.getvalue().strip().splitlines()) == 1 and "Traceback" not in stderr.getvalue()
+
+
+def test_command_db_records_run_and_writes_changes(tmp_path, field_files):
+    db = tmp_path / "store.sqlite"
+    args = ["forecast", str(field_files["clean"]), "--wells", str(field_files["header"]), "--econ-limit-bopd", "2",
+            "--workers", "1", "--db", str(db), "--field-name", "Test Field", "--no-xlsx"]
+    assert main(args + ["--out", str(tmp_path / "a")], stdout=io.StringIO(), stderr=io.StringIO()) == 0
+    assert not (tmp_path / "a" / "changes.csv").exists()
+    args2 = [a if a != "2" else "3" for a in args]  # a higher limit: every EUR can only fall
+    assert main(args2 + ["--out", str(tmp_path / "b")], stdout=io.StringIO(), stderr=io.StringIO()) == 0
+    ch = pd.read_csv(tmp_path / "b" / "changes.csv", keep_default_na=False)
+    assert {"well_id", "eur_oil_bbl_prev", "eur_oil_bbl_new"} <= set(ch.columns)
+    assert len(ch) == field_files["n_wells"]
+
+
+@pytest.mark.skipif(not SAMPLE_PROD.exists(), reason="sample field not generated yet")
+def test_sample_field_run():
+    res = run_from_files(SAMPLE_PROD, wells_path=SAMPLE_HEADER if SAMPLE_HEADER.exists() else None,
+                         settings=RunSettings(workers=1))
+    w = res.wells
+    prod_ids = set(pd.read_csv(SAMPLE_PROD, usecols=[0]).iloc[:, 0].astype(str))
+    assert set(w["well_id"]) >= prod_ids
+    ok = w["status"] == STATUS_OK
+    assert ok.sum() >= 0.7 * len(w)
+    assert (w.loc[ok, "eur_oil_bbl"] >= w.loc[ok, "cum_oil_bbl"]).all()
+    # the sample field has gas/condensate wells that must be recognised, not staged
+    assert w.loc[w["fluid_type"].isin(["gas_condensate", "wet_gas", "dry_gas"]), "stage"].isna().all()
+    for name, table in (("wells", w), ("monthly", res.monthly), ("units", res.units)):
+        num = table.select_dtypes("number").to_numpy(dtype=float, na_value=np.nan)
+        assert not np.isinf(num).any(), name
