@@ -914,6 +914,35 @@ class Store:
         df["dataset_id"] = df["dataset_id"].astype("Int64")
         return df
 
+    # ---- the monthly cycle
+    def append_load(self, field: str, new_load: Any) -> tuple[Any, pd.DataFrame, int | None]:
+        """Monthly update: append ``new_load`` to the production history held for ``field``.
+
+        Returns ``(load, merge_report, merged_from_id)``: with a held dataset, ``load`` is
+        ``new_load`` with the merged production and well header and the report is
+        :func:`core.changes.merge_production`'s (duplicates, conflicts with the newer file
+        winning, gaps); without one, ``new_load`` itself, an empty report and None. Pass
+        ``merged_from=merged_from_id`` to :meth:`save_run` so the record says what was merged.
+        """
+        from core.changes import _report_frame, merge_loads
+
+        held = self.latest_dataset(field)
+        if held is None:
+            return new_load, _report_frame([]), None
+        load, report = merge_loads(held.production, held.wells, new_load)
+        return load, report, held.id
+
+    def changes_since_previous(self, field: str, run_id: int | None = None, **tolerances: float) -> pd.DataFrame | None:
+        """:func:`core.changes.compare_runs` of run ``run_id`` (default the newest of
+        ``field``) against the run before it; None when there is no earlier run."""
+        from core.changes import compare_runs
+
+        new = self.latest_run(field) if run_id is None else self.load_run(run_id)
+        if new is None:
+            return None
+        prev = self.previous_run(field, before=new.id)
+        return None if prev is None else compare_runs(prev.wells, new.wells, **tolerances)
+
     # ---- overrides (append-only)
     def add_override(
         self, field: str, well_id: str, what: str, value: Any, *, reason: str, author: str

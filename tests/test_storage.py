@@ -536,3 +536,26 @@ def test_two_processes_writing_at_once(store_url, timeout_s):
         assert len(s.override_history("F")) == ok_overrides
         for rid in s.list_runs("F")["id"]:
             assert len(s.load_run(int(rid)).monthly) == 48
+
+
+def test_append_load_and_changes_since_previous(store):
+    # Hand-made: history of 6 months, then a file with the same 6 months plus one more
+    # whose oil volumes differ (restated) -> conflicts reported, the newer file wins.
+    first = make_load(6)
+    assert store.append_load("F", first)[2] is None
+    store.save_run(make_run(first), field="F", load=first)
+    nxt = make_load(7, name="lone_mesa_2026-10.csv")
+    load, report, held = store.append_load("F", nxt)
+    assert held == store.latest_dataset("F").id
+    assert report.loc[report["action"] == "added", "n_months"].tolist() == [1, 1, 1]
+    assert len(load.production) == 21
+    conf = report[report["action"] == "conflict"]
+    assert "oil_bbl" in set(conf["column"]) and (conf["kept"] == "new").all()
+    pd.testing.assert_series_equal(load.production["oil_bbl"], nxt.production["oil_bbl"])
+    rid = store.save_run(make_run(load, eur_shift=5000.0), field="F", load=load, merged_from=held)
+    assert store.load_dataset(store.load_run(rid).dataset_id).merged_from_id == held
+    ch = store.changes_since_previous("F").set_index("well_id")
+    # LM-01 EUR 120,000 -> 125,000 bbl: +4.2 %, above the 1 % default.
+    assert ch["eur_changed"].tolist() == [True, False, False]
+    assert ch.loc["LM-01", "eur_change_bbl"] == 5000.0
+    assert store.changes_since_previous("Other") is None
