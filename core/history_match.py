@@ -299,6 +299,10 @@ def fit_solution_gas_drive(
     except np.linalg.LinAlgError:
         se = np.array([np.nan, np.nan])
     se_ln_n, se_s = float(se[0]), float(se[1])
+    j0 = float(jac[:, 0] @ jac[:, 0])
+    if not np.isfinite(se_ln_n) and j0 > 0:
+        # Sgc not informed (zero Jacobian column): standard error of ln N with Sgc held
+        se_ln_n = float(np.sqrt(s2 / j0))
 
     # --- profile interval for Sgc (refined around the optimum) -------------------------------
     def profile_at(s: float, ln_n0: float) -> float:
@@ -350,9 +354,17 @@ def fit_solution_gas_drive(
         messages.append("oil in place is not constrained by these data (wide or open interval)")
     if not con_s:
         messages.append("critical gas saturation is not constrained by these data (wide or open interval)")
+    rms_p = float(np.sqrt(np.mean(r_final[:n_p] ** 2))) if n_p else 0.0
+    rms_g = float(np.sqrt(np.mean(r_final[n_p:] ** 2))) if n_g else 0.0
+    if max(rms_p, rms_g) > 2.0:
+        messages.append(
+            f"misfit well above the assumed errors (pressure {rms_p * pressure_sigma_psia:.0f} psi vs "
+            f"{pressure_sigma_psia:g}; ln GOR {rms_g * gor_sigma_log:.2f} vs {gor_sigma_log:g}): the unit does not "
+            "behave as one tank (wells at different depletion, or another drive); the intervals, which assume "
+            "the tank model, are too narrow")
     if np.isclose(s_hat, lo_s) or np.isclose(s_hat, hi_s):
-        messages.append(f"critical gas saturation sits on a search bound ({s_hat:g})")
-    if not (con_n and con_s):
+        messages.append(f"critical gas saturation sits on a search bound ({s_hat:.3f})")
+    if messages:
         warnings.warn("; ".join(messages), HistoryMatchWarning, stacklevel=2)
 
     n_low = n_hat * np.exp(-_Z80 * se_ln_n) if np.isfinite(se_ln_n) else float("nan")

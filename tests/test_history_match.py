@@ -96,7 +96,8 @@ def test_stage_one_unit_says_nothing_about_sgc(pvt):
 
 
 def test_no_pressure_surveys_is_stated(pvt):
-    _, res = _fit(pvt, j=4.0, n_months=60, surveys=None)
+    with pytest.warns(HistoryMatchWarning, match="no pressure surveys"):
+        _, res = _fit(pvt, j=4.0, n_months=60, surveys=None)
     assert res.n_pressure == 0
     assert any("no pressure surveys" in m for m in res.messages)
     # the GOR path alone still locates N on this stage-3 unit (within 5 %)
@@ -132,6 +133,15 @@ def test_history_match_unit_on_a_synthetic_field():
     assert np.isfinite(res.ooip_stb) and res.ooip_stb > f.production["oil_bbl"].sum()
     assert 0.0 < res.recovery_factor_to_date < 0.35
     assert res.n_gor > 24
+
+
+def test_unit_of_separate_wells_is_flagged_as_not_one_tank():
+    # Wells draining separate volumes at different depletion are not one tank: the misfit
+    # far exceeds the assumed survey error and the fit must say its intervals are too narrow.
+    f = synthetic_field(30, seed=4, n_units=1, stage_weights=(0.3, 0.0, 0.0, 0.7))
+    with pytest.warns(HistoryMatchWarning, match="does not behave as one tank"):
+        res = history_match_unit(f.production, f.wells, "U1", relperm=CoreyGasOil(swc=0.22, sorg=0.15))
+    assert any("one tank" in m for m in res.messages)
 
 
 def test_bad_inputs(pvt):
