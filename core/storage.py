@@ -1234,6 +1234,8 @@ def _open(path_or_url, *, create: bool, timeout_s: float, target: int) -> Store:
             url = sa.make_url(str(path_or_url))
         except sa_exc.ArgumentError as e:
             raise StoreError(f"cannot read the database URL: {e}") from e
+        if url.drivername in ("postgres", "postgresql"):  # no driver named: use psycopg 3
+            url = url.set(drivername="postgresql+psycopg")
         if url.get_backend_name() != "postgresql":
             raise StoreError(f"unsupported database {url.get_backend_name()!r}: use a SQLite file or PostgreSQL")
         engine = sa.create_engine(
