@@ -91,8 +91,10 @@ PLANNING_LABELS = {
     "not_applicable": "not applicable",
 }
 
+# No named template: building one is slow in plotly; a white plot with light grid lines instead.
 _LAYOUT = dict(
-    template="plotly_white",
+    paper_bgcolor="white",
+    plot_bgcolor="white",
     margin=dict(l=60, r=20, t=50, b=40),
     legend=dict(orientation="h", yanchor="bottom", y=1.02, xanchor="left", x=0.0),
     hovermode="x unified",
@@ -100,13 +102,60 @@ _LAYOUT = dict(
 )
 
 
+_AXIS = dict(showgrid=True, gridcolor="#E5E5E5", zeroline=False, linecolor="#888888", showline=True)
+
+
+class _Fig:
+    """Collects traces, shapes and annotations as plain dicts and validates them once.
+
+    Plotly validates on every ``add_*`` call and copies the layout each time; building the
+    figure in one go keeps a page with four figures well under a tenth of a second.
+    """
+
+    def __init__(self) -> None:
+        self.data: list[dict] = []
+        self.shapes: list[dict] = []
+        self.annotations: list[dict] = []
+
+    def trace(self, **kw: Any) -> None:
+        kw.setdefault("type", "scatter")
+        self.data.append(kw)
+
+    def vrect(self, x0: Any, x1: Any, color: str, opacity: float, label: str | None = None) -> None:
+        self.shapes.append(dict(type="rect", xref="x", yref="paper", x0=x0, x1=x1, y0=0, y1=1,
+                                fillcolor=color, opacity=opacity, line=dict(width=0), layer="below"))
+        if label:
+            self.annotations.append(dict(x=x0, y=1.0, xref="x", yref="paper", text=label, showarrow=False,
+                                         xanchor="left", yanchor="top", font=dict(size=10)))
+
+    def hline(self, y: float, line: dict, label: str | None = None, yref: str = "y",
+              xanchor: str = "left", x: float = 0.0, yanchor: str = "bottom") -> None:
+        self.shapes.append(dict(type="line", xref="paper", yref=yref, x0=0, x1=1, y0=y, y1=y, line=line))
+        if label:
+            self.annotations.append(dict(x=x, y=y, xref="paper", yref=yref, text=label, showarrow=False,
+                                         xanchor=xanchor, yanchor=yanchor, font=dict(size=10)))
+
+    def vline(self, x: Any, line: dict, label: str | None = None) -> None:
+        self.shapes.append(dict(type="line", xref="x", yref="paper", x0=x, x1=x, y0=0, y1=1, line=line))
+        if label:
+            self.annotations.append(dict(x=x, y=1.0, xref="x", yref="paper", text=label, showarrow=False,
+                                         textangle=-90, xanchor="right", yanchor="top", font=dict(size=10)))
+
+    def build(self, title: str, **layout: Any) -> go.Figure:
+        base = dict(_LAYOUT)
+        base.update(layout)
+        base["title"] = dict(text=title)
+        base["shapes"] = self.shapes
+        base["annotations"] = self.annotations
+        for ax in ("xaxis", "yaxis"):
+            base[ax] = {**_AXIS, **base.get(ax, {})}
+        return go.Figure(data=self.data, layout=base)
+
+
 def _empty(title: str, message: str) -> go.Figure:
-    fig = go.Figure()
-    fig.add_annotation(text=message, showarrow=False, xref="paper", yref="paper", x=0.5, y=0.5)
-    fig.update_layout(title=title, **_LAYOUT)
-    fig.update_xaxes(visible=False)
-    fig.update_yaxes(visible=False)
-    return fig
+    layout = dict(_LAYOUT, title=dict(text=title), xaxis=dict(visible=False), yaxis=dict(visible=False),
+                  annotations=[dict(text=message, showarrow=False, xref="paper", yref="paper", x=0.5, y=0.5)])
+    return go.Figure(layout=layout)
 
 
 def _positive(frame: pd.DataFrame, column: str) -> pd.DataFrame:
@@ -153,60 +202,33 @@ def rate_time_figure(
     actual = _positive(history, col)
     if actual.empty and (forecast is None or forecast.empty):
         return _empty(title, f"No positive {stream} rates to draw")
-    fig = go.Figure()
+    fig = _Fig()
     if fit_window is not None and fit_window[0] is not None and pd.notna(fit_window[0]):
-        fig.add_vrect(
-            x0=pd.Timestamp(fit_window[0]),
-            x1=pd.Timestamp(fit_window[1]) if pd.notna(fit_window[1]) else actual["month"].max(),
-            fillcolor=PALETTE["fit_window"],
-            opacity=PALETTE["stage_tint_opacity"],
-            line_width=0,
-            annotation_text="fit window",
-            annotation_position="top left",
-        )
+        end = fit_window[1] if fit_window[1] is not None and pd.notna(fit_window[1]) else actual["month"].max()
+        fig.vrect(pd.Timestamp(fit_window[0]), pd.Timestamp(end), PALETTE["fit_window"],
+                  PALETTE["stage_tint_opacity"], "fit window")
     excluded = pd.to_datetime(pd.Series(list(excluded_months), dtype="object"))
     is_excluded = actual["month"].isin(excluded) if len(excluded) else pd.Series(False, index=actual.index)
     used = actual.loc[~is_excluded]
     left_out = actual.loc[is_excluded]
-    fig.add_trace(
-        go.Scatter(
-            x=used["month"], y=used[col], mode="markers", name=f"actual {stream}",
-            marker=dict(color=PALETTE[stream], size=5, symbol="circle"),
-        )
-    )
+    fig.trace(x=used["month"], y=used[col], mode="markers", name=f"actual {stream}",
+              marker=dict(color=PALETTE[stream], size=5, symbol="circle"))
     if not left_out.empty:
-        fig.add_trace(
-            go.Scatter(
-                x=left_out["month"], y=left_out[col], mode="markers", name="excluded from fit",
-                marker=dict(color=PALETTE["excluded"], size=8, symbol="x"),
-            )
-        )
+        fig.trace(x=left_out["month"], y=left_out[col], mode="markers", name="excluded from fit",
+                  marker=dict(color=PALETTE["excluded"], size=8, symbol="x"))
     if fitted is not None and not fitted.empty:
         f = _positive(fitted, "rate")
-        fig.add_trace(
-            go.Scatter(
-                x=f["month"], y=f["rate"], mode="lines", name="fitted curve",
-                line=dict(color=PALETTE["fitted"], width=2, dash="dash"),
-            )
-        )
+        fig.trace(x=f["month"], y=f["rate"], mode="lines", name="fitted curve",
+                  line=dict(color=PALETTE["fitted"], width=2, dash="dash"))
     if forecast is not None and not forecast.empty:
         f = _positive(forecast, "rate")
-        fig.add_trace(
-            go.Scatter(
-                x=f["month"], y=f["rate"], mode="lines", name="forecast",
-                line=dict(color=PALETTE["forecast"], width=2, dash="dot"),
-            )
-        )
+        fig.trace(x=f["month"], y=f["rate"], mode="lines", name="forecast",
+                  line=dict(color=PALETTE["forecast"], width=2, dash="dot"))
     if econ_limit_rate is not None and pd.notna(econ_limit_rate) and econ_limit_rate > 0:
-        fig.add_hline(
-            y=float(econ_limit_rate), line=dict(color=PALETTE["event"], dash="dashdot", width=1),
-            annotation_text=f"economic limit {econ_limit_rate:.3g} {unit}",
-            annotation_position="bottom right",
-        )
-    fig.update_layout(title=title, **_LAYOUT)
-    fig.update_yaxes(type="log", title_text=f"{stream} rate [{unit}]")
-    fig.update_xaxes(title_text="month")
-    return fig
+        fig.hline(float(econ_limit_rate), dict(color=PALETTE["event"], dash="dashdot", width=1),
+                  f"economic limit {econ_limit_rate:.3g} {unit}", xanchor="right", x=1.0, yanchor="top")
+    return fig.build(title, yaxis=dict(type="log", title=dict(text=f"{stream} rate [{unit}]")),
+                     xaxis=dict(title=dict(text="month")))
 
 
 def rate_cumulative_figure(
@@ -223,26 +245,15 @@ def rate_cumulative_figure(
     actual = _positive(history, "oil_rate_bbl_d")
     if actual.empty:
         return _empty(title, "No positive oil rates to draw")
-    fig = go.Figure()
-    fig.add_trace(
-        go.Scatter(
-            x=actual["cum_oil_bbl"], y=actual["oil_rate_bbl_d"], mode="markers", name="actual oil",
-            marker=dict(color=PALETTE["oil"], size=5),
-        )
-    )
+    fig = _Fig()
+    fig.trace(x=actual["cum_oil_bbl"], y=actual["oil_rate_bbl_d"], mode="markers", name="actual oil",
+              marker=dict(color=PALETTE["oil"], size=5))
     if forecast is not None and not forecast.empty and "cum_oil_bbl" in forecast:
         f = _positive(forecast, "rate")
-        fig.add_trace(
-            go.Scatter(
-                x=f["cum_oil_bbl"], y=f["rate"], mode="lines", name="forecast",
-                line=dict(color=PALETTE["forecast"], width=2, dash="dot"),
-            )
-        )
-    layout = dict(_LAYOUT, hovermode="closest")
-    fig.update_layout(title=title, **layout)
-    fig.update_xaxes(title_text="cumulative oil [bbl]")
-    fig.update_yaxes(title_text="oil rate [bbl/d]", rangemode="tozero")
-    return fig
+        fig.trace(x=f["cum_oil_bbl"], y=f["rate"], mode="lines", name="forecast",
+                  line=dict(color=PALETTE["forecast"], width=2, dash="dot"))
+    return fig.build(title, hovermode="closest", xaxis=dict(title=dict(text="cumulative oil [bbl]")),
+                     yaxis=dict(title=dict(text="oil rate [bbl/d]"), rangemode="tozero"))
 
 
 def stage_periods(
@@ -305,78 +316,42 @@ def gor_pressure_figure(
     has_p = history is not None and "pressure_psia" in history and history["pressure_psia"].notna().any()
     if not has_gor and not has_p:
         return _empty(title, "No GOR or pressure data to draw")
-    fig = go.Figure()
+    fig = _Fig()
     for stage, start, end in periods:
-        fig.add_vrect(
-            x0=start, x1=end, fillcolor=PALETTE["stage"][stage],
-            opacity=PALETTE["stage_tint_opacity"], line_width=0, layer="below",
-            annotation_text=f"stage {stage}", annotation_position="top left",
-        )
+        fig.vrect(start, end, PALETTE["stage"][stage], PALETTE["stage_tint_opacity"], f"stage {stage}")
     if has_gor:
         g = history.loc[history["gor_scf_stb"].notna()]
-        fig.add_trace(
-            go.Scatter(
-                x=g["month"], y=g["gor_scf_stb"], mode="lines+markers", name="producing GOR",
-                line=dict(color=PALETTE["gor"], width=1.5), marker=dict(size=4, symbol="circle"),
-            )
-        )
+        fig.trace(x=g["month"], y=g["gor_scf_stb"], mode="lines+markers", name="producing GOR",
+                  line=dict(color=PALETTE["gor"], width=1.5), marker=dict(size=4, symbol="circle"))
     if has_p:
         p = history.loc[history["pressure_psia"].notna()]
-        fig.add_trace(
-            go.Scatter(
-                x=p["month"], y=p["pressure_psia"], mode="markers", name="pressure survey",
-                marker=dict(color=PALETTE["pressure"], size=8, symbol="diamond"), yaxis="y2",
-            )
-        )
+        fig.trace(x=p["month"], y=p["pressure_psia"], mode="markers", name="pressure survey",
+                  marker=dict(color=PALETTE["pressure"], size=8, symbol="diamond"), yaxis="y2")
     if expected is not None and not expected.empty:
         if "gor_scf_stb" in expected:
-            fig.add_trace(
-                go.Scatter(
-                    x=expected["month"], y=expected["gor_scf_stb"], mode="lines",
-                    name="expected GOR (history match)",
-                    line=dict(color=PALETTE["gor"], width=2, dash="dot"),
-                )
-            )
+            fig.trace(x=expected["month"], y=expected["gor_scf_stb"], mode="lines",
+                      name="expected GOR (history match)", line=dict(color=PALETTE["gor"], width=2, dash="dot"))
         if "pressure_psia" in expected:
-            fig.add_trace(
-                go.Scatter(
-                    x=expected["month"], y=expected["pressure_psia"], mode="lines",
-                    name="expected pressure (history match)",
-                    line=dict(color=PALETTE["pressure"], width=2, dash="dot"), yaxis="y2",
-                )
-            )
+            fig.trace(x=expected["month"], y=expected["pressure_psia"], mode="lines",
+                      name="expected pressure (history match)",
+                      line=dict(color=PALETTE["pressure"], width=2, dash="dot"), yaxis="y2")
     if rsi_scf_stb is not None and pd.notna(rsi_scf_stb):
-        fig.add_hline(
-            y=float(rsi_scf_stb), line=dict(color=PALETTE["gor"], dash="dash", width=1),
-            annotation_text=f"Rsi {rsi_scf_stb:.0f} scf/STB", annotation_position="bottom left",
-        )
+        fig.hline(float(rsi_scf_stb), dict(color=PALETTE["gor"], dash="dash", width=1),
+                  f"Rsi {rsi_scf_stb:.0f} scf/STB")
     if bubble_point_psia is not None and pd.notna(bubble_point_psia):
-        fig.add_hline(
-            y=float(bubble_point_psia), yref="y2",
-            line=dict(color=PALETTE["pressure"], dash="dash", width=1),
-            annotation_text=f"bubble point {bubble_point_psia:.0f} psia",
-            annotation_position="top right",
-        )
+        fig.hline(float(bubble_point_psia), dict(color=PALETTE["pressure"], dash="dash", width=1),
+                  f"bubble point {bubble_point_psia:.0f} psia", yref="y2", xanchor="right", x=1.0)
     for label, when in (events or {}).items():
         if when is None or pd.isna(when):
             continue
-        # A shape plus a separate annotation: add_vline's own annotation cannot take dates.
-        fig.add_vline(x=pd.Timestamp(when), line=dict(color=PALETTE["event"], dash="dot", width=1))
-        fig.add_annotation(
-            x=pd.Timestamp(when), y=1.0, yref="paper", text=label, showarrow=False,
-            textangle=-90, xanchor="right", yanchor="top", font=dict(size=10),
-        )
-    fig.update_layout(
-        title=title,
+        fig.vline(pd.Timestamp(when), dict(color=PALETTE["event"], dash="dot", width=1), label)
+    return fig.build(
+        title,
+        xaxis=dict(title=dict(text="month")),
         yaxis=dict(title=dict(text="GOR [scf/STB]"), rangemode="tozero"),
-        yaxis2=dict(
-            title=dict(text="pressure [psia]"), overlaying="y", side="right",
-            rangemode="tozero", showgrid=False,
-        ),
-        **_LAYOUT,
+        yaxis2=dict(title=dict(text="pressure [psia]"), overlaying="y", side="right",
+                    rangemode="tozero", showgrid=False),
     )
-    fig.update_xaxes(title_text="month")
-    return fig
 
 
 _SHARE_COLUMNS = [
@@ -396,23 +371,18 @@ def stage_share_figure(units: pd.DataFrame, *, title: str = "Wells by stage in e
     """
     if units is None or units.empty:
         return _empty(title, "No reservoir units")
-    fig = go.Figure()
+    fig = _Fig()
     labels = [f"{u} ({n} wells)" for u, n in zip(units["unit"], units["n_wells"])]
     for stage, column in _SHARE_COLUMNS:
         if column not in units:
             continue
         name = STAGE_LABELS.get(stage, "not applicable (gas, condensate, unknown)")
-        fig.add_trace(
-            go.Bar(
-                y=labels, x=units[column], name=name, orientation="h",
-                marker=dict(color=PALETTE["stage"][stage], line=dict(color="#333333", width=0.5)),
-                hovertemplate="%{y}: %{x:.0%}<extra>" + name + "</extra>",
-            )
-        )
-    layout = dict(_LAYOUT, hovermode="closest")
-    fig.update_layout(title=title, barmode="stack", **layout)
-    fig.update_xaxes(title_text="share of wells", tickformat=".0%", range=[0, 1])
-    return fig
+        fig.trace(type="bar", y=labels, x=units[column], name=name, orientation="h",
+                  marker=dict(color=PALETTE["stage"][stage], line=dict(color="#333333", width=0.5)),
+                  hovertemplate="%{y}: %{x:.0%}<extra>" + name + "</extra>")
+    return fig.build(title, barmode="stack", hovermode="closest",
+                     xaxis=dict(title=dict(text="share of wells"), tickformat=".0%", range=[0, 1]),
+                     yaxis=dict(automargin=True))
 
 
 def planning_status_figure(counts: pd.DataFrame, *, title: str = "Wells by planning status") -> go.Figure:
@@ -424,16 +394,10 @@ def planning_status_figure(counts: pd.DataFrame, *, title: str = "Wells by plann
         return _empty(title, "No planning statuses")
     colours = [PALETTE["planning"].get(s, PALETTE["excluded"]) for s in counts["planning_status"]]
     labels = [PLANNING_LABELS.get(s, str(s)) for s in counts["planning_status"]]
-    fig = go.Figure(
-        go.Bar(
-            x=labels, y=counts["wells"], marker=dict(color=colours, line=dict(color="#333333", width=0.5)),
-            text=counts["wells"], textposition="outside", name="wells",
-        )
-    )
-    layout = dict(_LAYOUT, hovermode="closest", showlegend=False)
-    fig.update_layout(title=title, **layout)
-    fig.update_yaxes(title_text="wells")
-    return fig
+    fig = _Fig()
+    fig.trace(type="bar", x=labels, y=counts["wells"], marker=dict(color=colours, line=dict(color="#333333", width=0.5)),
+              text=counts["wells"], textposition="outside", name="wells")
+    return fig.build(title, hovermode="closest", showlegend=False, yaxis=dict(title=dict(text="wells")))
 
 
 def field_rate_figure(field: pd.DataFrame, *, title: str = "Field oil rate: history and forecast") -> go.Figure:
@@ -444,7 +408,7 @@ def field_rate_figure(field: pd.DataFrame, *, title: str = "Field oil rate: hist
     """
     if field is None or field.empty:
         return _empty(title, "No field totals")
-    fig = go.Figure()
+    fig = _Fig()
     for kind, colour, dash, name in (
         ("actual", PALETTE["oil"], "solid", "field oil rate, actual"),
         ("forecast", PALETTE["forecast"], "dot", "field oil rate, forecast"),
@@ -452,13 +416,7 @@ def field_rate_figure(field: pd.DataFrame, *, title: str = "Field oil rate: hist
         part = field.loc[field["kind"] == kind]
         if part.empty:
             continue
-        fig.add_trace(
-            go.Scatter(
-                x=part["month"], y=part["oil_rate_bopd"], mode="lines", name=name,
-                line=dict(color=colour, width=2, dash=dash),
-            )
-        )
-    fig.update_layout(title=title, **_LAYOUT)
-    fig.update_yaxes(title_text="oil rate [bbl/d]", rangemode="tozero")
-    fig.update_xaxes(title_text="month")
-    return fig
+        fig.trace(x=part["month"], y=part["oil_rate_bopd"], mode="lines", name=name,
+                  line=dict(color=colour, width=2, dash=dash))
+    return fig.build(title, yaxis=dict(title=dict(text="oil rate [bbl/d]"), rangemode="tozero"),
+                     xaxis=dict(title=dict(text="month")))

@@ -593,9 +593,9 @@ def headline(run) -> dict[str, Any]:
         "wells": s.get("wells_read", len(w)),
         "wells_forecast": s.get("wells_forecast", None),
         "oil_rate_now_bopd": s.get("oil_rate_now_bopd", _sum(w, "last_oil_rate_bopd")),
-        "cum_oil_bbl": s.get("cum_oil_bbl", _sum(w, "cum_oil_bbl")),
-        "remaining_oil_bbl": s.get("remaining_oil_bbl", _sum(w, "remaining_oil_bbl")),
-        "eur_oil_bbl": s.get("eur_oil_bbl", _sum(w, "eur_oil_bbl")),
+        "cum_oil_bbl": s.get("cum_oil_bbl_total", _sum(w, "cum_oil_bbl")),
+        "remaining_oil_bbl": s.get("remaining_oil_bbl_total", _sum(w, "remaining_oil_bbl")),
+        "eur_oil_bbl": s.get("eur_oil_bbl_total", _sum(w, "eur_oil_bbl")),
         "wells_past_gor_peak": s.get("wells_past_gor_peak", int(w["passed_gor_peak"].fillna(False).astype(bool).sum())),
     }
     return out
@@ -781,28 +781,41 @@ def _unit_observed(key: str, unit: str) -> pd.DataFrame:
 
 
 # ---- exports -----------------------------------------------------------------------------------
-def export_csv(run, wells: Iterable[str] | None) -> dict[str, bytes]:
-    """CSV bytes of the run's tables (one well, a selection, or the field when ``wells`` is None)."""
-    return _export_csv(run_key(), None if wells is None else tuple(sorted(wells)), run)
+@st.cache_resource(show_spinner=False)
+def _exports() -> _LRU:
+    return _LRU(16)
 
 
-@st.cache_data(max_entries=16, show_spinner=False)
-def _export_csv(key: str, wells: tuple | None, _run) -> dict[str, bytes]:
-    from core.export import tables_to_csv_bytes
+def _deferred(kind: str, run, wells: Iterable[str] | None, name: str | None = None) -> Callable[[], bytes]:
+    """A zero-argument callable building export bytes with ``core.export`` when the user clicks
+    the download button (Streamlit runs it outside the page script), memoised per run."""
+    cache = _exports()  # looked up in the script thread; the callable runs in another thread
+    sel = None if wells is None else tuple(sorted(map(str, wells)))
+    key = (run_key(), kind, sel)
 
-    return tables_to_csv_bytes(_run, wells=wells)
+    def build() -> bytes:
+        from core.export import run_to_xlsx_bytes, tables_to_csv_bytes
+
+        data = cache.get(str(key))
+        if data is None:
+            data = run_to_xlsx_bytes(run, wells=sel) if kind == "xlsx" else tables_to_csv_bytes(run, wells=sel)
+            cache.put(str(key), data)
+        return data if kind == "xlsx" else data[name]
+
+    return build
 
 
-def export_xlsx(run, wells: Iterable[str] | None) -> bytes:
-    """XLSX workbook bytes of the run (cover sheet with inputs and cautions, then the tables)."""
-    return _export_xlsx(run_key(), None if wells is None else tuple(sorted(wells)), run)
+def export_xlsx(run, wells: Iterable[str] | None) -> Callable[[], bytes]:
+    """Deferred XLSX workbook bytes (cover sheet with inputs and cautions, then the tables)."""
+    return _deferred("xlsx", run, wells)
 
 
-@st.cache_data(max_entries=16, show_spinner=False)
-def _export_xlsx(key: str, wells: tuple | None, _run) -> bytes:
-    from core.export import run_to_xlsx_bytes
+def export_csv(run, wells: Iterable[str] | None) -> dict[str, Callable[[], bytes]]:
+    """Deferred CSV bytes of the run's tables, keyed by file name (one well, a selection, or
+    the field when ``wells`` is None)."""
+    from core.export import CSV_FILES
 
-    return run_to_xlsx_bytes(_run, wells=wells)
+    return {name: _deferred("csv", run, wells, name) for name in CSV_FILES.values()}
 
 
 def flags_csv() -> bytes:

@@ -30,9 +30,9 @@ elif scope == "One well":
 
 st.download_button(
     "Forecast workbook (XLSX)", state.export_xlsx(run, wells), file_name=f"forecast_{tag}.xlsx",
-    mime="application/vnd.openxmlformats-officedocument.spreadsheetml.sheet", key="download_xlsx", type="primary",
+    mime="application/vnd.openxmlformats-officedocument.spreadsheetml.sheet", key="download_xlsx", type="primary", on_click="ignore",
 )
 files = state.export_csv(run, wells)
 cols = st.columns(len(files))
 for col, (name, data) in zip(cols, files.items()):
-    col.download_button(name, data, file_name=f"{tag}_{name}", mime="text/csv", key=f"download_{name}")
+    col.download_button(name, data, file_name=f"{tag}_{name}", mime="text/csv", key=f"download_{name}", on_click="ignore")

@@ -1,0 +1,269 @@
+"""AppTest tests of the dashboard: every page renders, and the numbers it shows are core's.
+
+The expected numbers are produced by ``core.run.run_field`` on the same input in the test
+itself: the dashboard must show core's numbers, not its own (the check is one of identity
+between two paths through the program, not of the numbers' engineering correctness, which
+the core tests cover against published sources).
+"""
+
+from __future__ import annotations
+
+import json
+from pathlib import Path
+
+import pandas as pd
+import pytest
+from streamlit.testing.v1 import AppTest
+
+from core.decline import WellOverride
+from core.production import load_production
+from core.run import RunSettings, run_field
+
+ROOT = Path(__file__).resolve().parents[1]
+APP = str(ROOT / "dashboard" / "app.py")
+SAMPLE = ROOT / "sample_wells" / "production.csv"
+HEADER = ROOT / "sample_wells" / "well_header.csv"
+PAGES = [
+    "pages/load.py", "pages/overview.py", "pages/well.py", "pages/planning.py",
+    "pages/exports.py", "pages/settings.py", "pages/about.py",
+]
+APPLY_OVERRIDE = "FormSubmitter:override_form-Apply override"
+APPLY_SETTINGS = "FormSubmitter:settings_form-Apply settings"
+ADD_FLAG = "FormSubmitter:flag_form-Add the flag"
+
+
+@pytest.fixture(autouse=True)
+def _fresh_store(tmp_path, monkeypatch):
+    # Every test gets its own empty store (no record leaks between tests or to $HOME).
+    monkeypatch.setenv("DEPLETION_DESK_DB", str(tmp_path / "store"))
+    monkeypatch.delenv("DEPLETION_DESK_MAX_UPLOAD_MB", raising=False)
+
+
+def _sample_load():
+    header = HEADER.read_bytes() if HEADER.exists() else None
+    return load_production(SAMPLE.read_bytes(), file_name=SAMPLE.name, units="field", well_header=header)
+
+
+@pytest.fixture(scope="module")
+def sample_run():
+    """core's own run of the bundled sample with default settings (the expected numbers)."""
+    load = _sample_load()
+    return load, run_field(load, settings=RunSettings())
+
+
+def _app() -> AppTest:
+    at = AppTest.from_file(APP, default_timeout=120).run()
+    assert not at.exception, [e.value for e in at.exception]
+    return at
+
+
+def _metric(at: AppTest, label: str) -> str:
+    found = [m.value for m in at.metric if m.label == label]
+    assert found, f"no metric {label!r}; have {[m.label for m in at.metric]}"
+    return found[0]
+
+
+def _bbl(x: float) -> str:
+    # The page's own format for volumes (thousands separators, no decimals).
+    return f"{x:,.0f} bbl"
+
+
+def _ok(at: AppTest) -> None:
+    assert not at.exception, [e.value for e in at.exception]
+    assert not at.error, [e.value for e in at.error]
+
+
+def test_every_page_renders_with_the_sample_field():
+    at = _app()
+    for page in PAGES:
+        at.switch_page(page).run()
+        _ok(at)
+    # The caution is shown on the pages with forecasts and planning statuses.
+    for page in ("pages/overview.py", "pages/well.py", "pages/planning.py", "pages/exports.py"):
+        at.switch_page(page).run()
+        assert any("reserves bookings and field decisions follow local regulations" in c.value for c in at.caption)
+
+
+def test_load_page_shows_the_loaders_counts(sample_run):
+    load, _ = sample_run
+    at = _app()
+    _ok(at)
+    assert _metric(at, "Rows read") == f"{load.rows_read:,}"
+    assert _metric(at, "Rows used") == f"{load.rows_used:,}"
+    assert _metric(at, "Rows rejected") == f"{load.rows_rejected:,}"
+    # Closed-form identity of the loader contract: read = used + rejected.
+    assert load.rows_read == load.rows_used + load.rows_rejected
+    assert _metric(at, "Wells") == f"{load.production['well_id'].nunique():,}"
+
+
+def test_overview_numbers_equal_core_run(sample_run):
+    _, run = sample_run
+    at = _app()
+    at.switch_page("pages/overview.py").run()
+    _ok(at)
+    assert _metric(at, "Wells") == f"{len(run.wells):,}"
+    assert _metric(at, "EUR oil") == _bbl(run.wells["eur_oil_bbl"].sum())
+    assert _metric(at, "Remaining oil") == _bbl(run.wells["remaining_oil_bbl"].sum())
+    assert _metric(at, "Cumulative oil") == _bbl(run.wells["cum_oil_bbl"].sum())
+    assert _metric(at, "Wells past the GOR peak") == f"{int(run.wells['passed_gor_peak'].astype(bool).sum()):,}"
+    table = at.dataframe[0].value
+    assert len(table) == len(run.wells)
+    merged = table.merge(run.wells, on="well_id", suffixes=("_shown", "_core"))
+    pd.testing.assert_series_equal(merged["eur_oil_bbl_shown"], merged["eur_oil_bbl_core"], check_names=False)
+
+
+def test_overview_filter_narrows_the_table(sample_run):
+    _, run = sample_run
+    at = _app()
+    at.switch_page("pages/overview.py").run()
+    unit = str(run.wells["unit"].iloc[0])
+    at.multiselect(key="filter_unit").select(unit).run()
+    _ok(at)
+    shown = at.dataframe[0].value
+    assert set(shown["unit"]) == {unit}
+    assert len(shown) == int((run.wells["unit"].astype(str) == unit).sum())
+
+
+def test_settings_change_reruns_with_the_new_limit(sample_run):
+    load, _ = sample_run
+    at = _app()
+    at.switch_page("pages/settings.py").run()
+    at.number_input(key="set_econ_limit").set_value(7.5)
+    at.button(key=APPLY_SETTINGS).click().run()
+    _ok(at)
+    at.switch_page("pages/overview.py").run()
+    _ok(at)
+    expected = run_field(load, settings=RunSettings(econ_limit_bopd=7.5))
+    assert _metric(at, "EUR oil") == _bbl(expected.wells["eur_oil_bbl"].sum())
+    assert set(expected.wells["econ_limit_bopd"].dropna()) <= {7.5}
+
+
+def test_settings_economic_limit_from_prices_equals_core(sample_run):
+    load, _ = sample_run
+    at = _app()
+    at.switch_page("pages/settings.py").run()
+    at.radio(key="set_mode").set_value("prices and costs")
+    at.number_input(key="set_oil_price").set_value(60.0)
+    at.number_input(key="set_opex").set_value(2500.0)
+    at.number_input(key="set_nri").set_value(0.8)
+    at.button(key=APPLY_SETTINGS).click().run()
+    _ok(at)
+    at.switch_page("pages/overview.py").run()
+    _ok(at)
+    expected = run_field(load, settings=RunSettings(oil_price=60.0, opex_per_month=2500.0, nri=0.8))
+    assert _metric(at, "EUR oil") == _bbl(expected.wells["eur_oil_bbl"].sum())
+
+
+def test_well_page_shows_core_numbers_and_an_override_refits_it(sample_run):
+    load, run = sample_run
+    at = _app()
+    at.switch_page("pages/well.py").run()
+    _ok(at)
+    well = at.selectbox(key="well_pick").value
+    row = run.wells.set_index("well_id").loc[well]
+    if pd.notna(row["eur_oil_bbl"]):
+        assert _metric(at, "EUR oil") == _bbl(row["eur_oil_bbl"])
+    charts = [json.loads(c.proto.spec) for c in at.get("plotly_chart")]
+    names = {t.get("name") for c in charts for t in c["data"]}
+    assert {"actual oil", "producing GOR"} <= names
+    # Apply an override: fixed b = 0.3, with a reason.
+    at.checkbox(key="ov_fix_b").check()
+    at.number_input(key="ov_b").set_value(0.3)
+    at.text_input(key="ov_reason").input("b from the unit's analogue wells")
+    at.text_input(key="ov_author").input("A. Engineer")
+    at.button(key=APPLY_OVERRIDE).click().run()
+    _ok(at)
+    ov = WellOverride(b=0.3, reason="b from the unit's analogue wells", author="A. Engineer")
+    expected = run_field(load, settings=RunSettings(), overrides={well: ov}).wells.set_index("well_id").loc[well]
+    assert _metric(at, "b") == f"{expected['b']:.2f}"
+    if pd.notna(expected["eur_oil_bbl"]):
+        assert _metric(at, "EUR oil") == _bbl(expected["eur_oil_bbl"])
+    # Recorded with its reason in the store's append-only trail.
+    log = at.dataframe[-1].value
+    assert "b from the unit's analogue wells" in set(log["reason"])
+    assert "A. Engineer" in set(log["author"])
+
+
+def test_override_without_reason_is_refused():
+    at = _app()
+    at.switch_page("pages/well.py").run()
+    at.checkbox(key="ov_fix_b").check()
+    at.button(key=APPLY_OVERRIDE).click().run()
+    assert not at.exception
+    assert any("needs a reason" in e.value for e in at.error)
+    assert at.session_state["dd_overrides"] == {}
+
+
+def test_overrides_and_flags_survive_a_new_session():
+    at = _app()
+    at.switch_page("pages/well.py").run()
+    well = at.selectbox(key="well_pick").value
+    at.checkbox(key="ov_fix_b").check()
+    at.number_input(key="ov_b").set_value(0.5)
+    at.text_input(key="ov_reason").input("workover in the window")
+    at.button(key=APPLY_OVERRIDE).click().run()
+    _ok(at)
+    at.switch_page("pages/planning.py").run()
+    at.text_area(key="flag_note").input("pressure support study")
+    at.button(key=ADD_FLAG).click().run()
+    _ok(at)
+    # A new browser tab is a new session: the store gives back the override and the flag.
+    again = _app()
+    assert again.session_state["dd_overrides"][well].b == 0.5
+    again.switch_page("pages/planning.py").run()
+    flags = [d.value for d in again.dataframe if "note" in d.value.columns]
+    assert flags and "pressure support study" in set(flags[0]["note"])
+
+
+def test_upload_through_the_page_then_compute(sample_run):
+    at = _app()
+    # A file of our own: the sample's first 1,500 lines (other bytes than the sample, so a new load).
+    data = b"\n".join(SAMPLE.read_bytes().splitlines()[:1500]) + b"\n"
+    at.file_uploader(key="upload_production").set_value(("my_field.csv", data, "text/csv")).run()
+    _ok(at)
+    # The report is shown before anything is computed.
+    assert [b for b in at.button if b.key == "run_forecast"]
+    at.button(key="run_forecast").click().run()
+    _ok(at)
+    at.switch_page("pages/overview.py").run()
+    _ok(at)
+    load = load_production(data, file_name="my_field.csv", units="field")
+    expected = run_field(load, settings=RunSettings())
+    assert _metric(at, "Wells") == f"{len(expected.wells):,}"
+    assert _metric(at, "EUR oil") == _bbl(expected.wells["eur_oil_bbl"].sum())
+
+
+def test_unreadable_upload_gives_one_clear_message():
+    at = _app()
+    at.file_uploader(key="upload_production").set_value(("empty.csv", b"", "text/csv")).run()
+    assert not at.exception
+    assert len(at.error) == 1
+    assert "empty.csv" in at.error[0].value
+
+
+def test_upload_above_the_limit_is_refused_with_a_message(monkeypatch):
+    monkeypatch.setenv("DEPLETION_DESK_MAX_UPLOAD_MB", "0.001")
+    at = _app()
+    at.file_uploader(key="upload_production").set_value(("big.csv", b"x" * 5000, "text/csv")).run()
+    assert not at.exception
+    assert any("upload limit" in e.value and "big.csv" in e.value for e in at.error)
+
+
+def test_exports_page_offers_the_workbook_and_the_csv_tables():
+    at = _app()
+    at.switch_page("pages/exports.py").run()
+    _ok(at)
+    labels = {b.proto.label for b in at.get("download_button")}
+    assert {"Forecast workbook (XLSX)", "wells.csv", "forecast_monthly.csv", "units.csv", "load_report.csv"} <= labels
+    at.radio(key="export_scope").set_value("One well").run()
+    _ok(at)
+
+
+def test_planning_page_shows_core_unit_table(sample_run):
+    _, run = sample_run
+    at = _app()
+    at.switch_page("pages/planning.py").run()
+    _ok(at)
+    units = at.dataframe[0].value
+    assert list(units["unit"]) == list(run.units["unit"])
+    assert list(units["n_wells"]) == list(run.units["n_wells"])
