@@ -85,6 +85,9 @@ HEADER_BOUNDS = {
     "initial_pressure_psia": (14.0, PRESSURE_MAX_PSIA, "psia"),
     "bubble_point_psia": (14.0, PRESSURE_MAX_PSIA, "psia"),
 }
+#: Largest plausible monthly volume of one well (bbl or Mcf; days on in d are bounded by the
+#: month). 1e9 bbl/month is ~33 million bbl/d, far above any well (common practice bound).
+VOLUME_MAX = 1.0e9
 DEFAULT_MAX_BYTES = 200 * 1024 * 1024
 #: A header line longer than this is not a table header.
 MAX_HEADER_BYTES = 64 * 1024
@@ -460,7 +463,7 @@ def _read_csv(raw: bytes, name: str, *, mapping: Mapping[str, str] | None,
     while len(head_lines) < HEADER_SCAN_ROWS + 50 and pos < len(text):
         j = text.find("\n", pos)
         j = len(text) if j < 0 else j
-        head_lines.append(text[pos:j].rstrip("\r"))
+        head_lines.append(text[pos:min(j, pos + MAX_HEADER_BYTES)].rstrip("\r"))
         pos = j + 1
     non_blank = [ln for ln in head_lines if ln.strip()]
     if not non_blank:
@@ -480,7 +483,7 @@ def _read_csv(raw: bytes, name: str, *, mapping: Mapping[str, str] | None,
     dtype = {c: str for c in header if c in text_cols}
     kw = dict(sep=delim, header=None, names=header, skiprows=hdr + 1, dtype=dtype, keep_default_na=False,
               na_values=[""], skip_blank_lines=False, low_memory=False, quotechar='"', nrows=nrows,
-              decimal="," if dec else ".", float_precision="round_trip")
+              decimal="," if dec else ".")
     body = text if enc != "utf-8" else None
     try:
         if body is None:
@@ -492,7 +495,10 @@ def _read_csv(raw: bytes, name: str, *, mapping: Mapping[str, str] | None,
     except (pd.errors.ParserError, ValueError, csv.Error) as exc:
         messages.append(f"{name}: rows with extra fields found ({(str(exc).splitlines() or [''])[0][:120]}); "
                         "read row by row")
-        frame, extra, rownum = _read_csv_slow(text, name, delim, header, hdr, dtype, dec, nrows)
+        try:
+            frame, extra, rownum = _read_csv_slow(text, name, delim, header, hdr, dtype, dec, nrows)
+        except csv.Error as exc2:
+            raise InputError(f"{name}: cannot be read as {delim!r}-delimited text ({exc2})") from None
     # truncated last line: the file does not end with a line break and the last row is short
     if len(frame) and not text.endswith(("\n", "\r")) and extra is None:
         last = text[text.rfind("\n") + 1:]
@@ -861,7 +867,7 @@ def _parse_dates(uniq: pd.Series, name: str, column: str, dayfirst: bool | None)
     ser = ~done & np.isfinite(num)
     year_only = ser & (num >= YEAR_MIN) & (num <= YEAR_MAX) & (np.floor(num) == num)
     reason[year_only] = "a year alone is not a month"
-    ser &= (num >= EXCEL_SERIAL_MIN) & (num <= EXCEL_SERIAL_MAX)
+    ser &= ~year_only & (num >= EXCEL_SERIAL_MIN) & (num <= EXCEL_SERIAL_MAX)
     if ser.any():
         ts = EXCEL_EPOCH + pd.to_timedelta(np.floor(num[ser]), unit="D")
         take_mask = np.zeros(n, dtype=bool)
@@ -1381,6 +1387,12 @@ def load_production(
             rep.add(rows[idx], wid_np[idx], mp[k], _raw_values(col, idx), "rejected",
                     "negative value (accounting correction?); row not used")
             reject |= neg
+        huge = (st == _OK) & (v > VOLUME_MAX) & ~reject
+        if huge.any():
+            idx = np.flatnonzero(huge)
+            rep.add(rows[idx], wid_np[idx], mp[k], _raw_values(col, idx), "rejected",
+                    f"implausibly large (above {VOLUME_MAX:g} per month); row not used")
+            reject |= huge
         empty = ((st == _BLANK) | (st == _NA)) & ~reject
         if empty.any():
             idx = np.flatnonzero(empty)
@@ -1531,14 +1543,15 @@ def load_production(
     # derived
     prod["month"] = _month_from_index(mik).to_numpy()
     dd_ = prod["days_on"].to_numpy()
-    with np.errstate(divide="ignore", invalid="ignore"):
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
         for vcol, rcol in (("oil_bbl", "oil_rate_bbl_d"), ("gas_mcf", "gas_rate_mcf_d"), ("water_bbl", "water_rate_bbl_d")):
             prod[rcol] = np.where(dd_ > 0, prod[vcol].to_numpy() / np.where(dd_ > 0, dd_, 1.0), np.nan)
         o = prod["oil_bbl"].to_numpy()
         g_ = prod["gas_mcf"].to_numpy()
         wt = prod["water_bbl"].to_numpy()
         prod["oil_rate_cal_bbl_d"] = o / prod["days_in_month"].to_numpy()
-        prod["gor_scf_stb"] = np.where((o > 0) & np.isfinite(g_), 1000.0 * g_ / np.where(o > 0, o, 1.0), np.nan)
+        gor = np.where((o > 0) & np.isfinite(g_), 1000.0 * g_ / np.where(o > 0, o, 1.0), np.nan)
+        prod["gor_scf_stb"] = np.where(np.isfinite(gor), gor, np.nan)  # tiny oil volumes: no inf
         s_ow = o + wt
         prod["water_cut"] = np.where(np.isfinite(s_ow) & (s_ow > 0), wt / np.where(s_ow > 0, s_ow, 1.0), np.nan)
     grp = prod.groupby("wrank", sort=False)
