@@ -13,8 +13,9 @@ What is kept
 * ``datasets``: each loaded file (content SHA-256, file name, time, rows read/used/rejected,
   column mapping, messages) with its tidy monthly production table, well header and load
   report, so next month's file can be appended (:mod:`core.changes`).
-* ``runs``: each forecast run (inputs, settings as JSON, program version, as-of month) with its
-  per-well table, monthly forecast table, unit table, load report and fit candidates.
+* ``runs``: each forecast run (inputs, settings as JSON, program version, as-of month, summary)
+  with its per-well table, monthly forecast table, unit table, load report, fit candidates,
+  stage, fit and fluid tables.
 * ``overrides``: engineer overrides (well, what, value, reason, author, time). Append-only:
   the store has no method that updates or deletes an entry and the database itself refuses
   UPDATE and DELETE on the table (triggers). The effective override per field, well and
@@ -1010,7 +1011,10 @@ class Store:
                 kw["exclude_months"] = tuple(pd.Timestamp(m) for m in kw["exclude_months"])
             kw["reason"] = "; ".join(dict.fromkeys(g["reason"]))
             kw["author"] = str(g["author"].iloc[-1])
-            out[str(well)] = WellOverride(**kw)
+            try:
+                out[str(well)] = WellOverride(**kw)
+            except (TypeError, ValueError) as e:
+                raise InputError(f"the stored override of well {well!r} cannot be used: {e}") from e
         return out
 
     # ---- planning flags and notes (append-only)
@@ -1167,7 +1171,7 @@ def _sqlite_engine(path: Path, timeout_s: float) -> sa.Engine:
     return eng
 
 
-def _resolve(path_or_url: str | os.PathLike, create: bool) -> tuple[str, Path | None]:
+def _resolve(path_or_url: str | os.PathLike) -> tuple[str, Path | None]:
     s = os.fspath(path_or_url).strip() if not isinstance(path_or_url, str) else path_or_url.strip()
     if not s:
         raise InputError("give a store path or database URL")
@@ -1218,9 +1222,8 @@ def _open(path_or_url, *, create: bool, timeout_s: float, target: int) -> Store:
         raise InputError(f"timeout_s must be a non-negative number of seconds, got {timeout_s!r}")
     if path_or_url is None:
         path_or_url = default_data_folder()
-    kind, path = _resolve(path_or_url, create)
+    kind, path = _resolve(path_or_url)
     if kind == "sqlite":
-        assert path is not None
         if not path.exists():
             if not create:
                 raise StoreError(f"no store at {path} (open with create=True to make one)")
