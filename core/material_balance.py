@@ -409,7 +409,7 @@ class DepletionPrediction:
         ``producing_gor_scf_stb``, ``so``, ``sg``, ``kro``, ``bo_bbl_stb``, ``mu_o_cp``,
         ``rs_scf_stb``.
         """
-        r = np.asarray(np_over_n, dtype=float)
+        r = np.atleast_1d(np.asarray(np_over_n, dtype=float))
         t = self.table
         x = t["np_over_n"].to_numpy()
         out = {"np_over_n": r}

@@ -307,3 +307,15 @@ def test_bad_arguments():
     with pytest.raises(ValueError, match="p_psia must not exceed"):
         undersaturated_recovery(3000.0, pi_psia=2925.0, bo_bbl_stb=1.4, boi_bbl_stb=1.43, swi=0.15,
                                 cf_1_psi=4e-6, cw_1_psi=3e-6)
+
+
+def test_state_at_recovery_interpolates_the_path(correlation_runs):
+    # Closed-form identity: at the table's own recovery factors the state is the table row.
+    pred, _ = correlation_runs
+    t = pred.table
+    rows = t.iloc[[5, 40, 120, 200]]
+    s = pred.at_recovery(rows["np_over_n"].to_numpy())
+    assert_allclose(s["p_psia"], rows["p_psia"], rtol=1e-12)
+    assert_allclose(s["producing_gor_scf_stb"], rows["producing_gor_scf_stb"], rtol=1e-12)
+    # beyond the end of the path the state is held at abandonment
+    assert pred.at_recovery(0.99)["p_psia"].iloc[0] == pytest.approx(pred.p_abandon_psia)

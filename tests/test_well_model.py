@@ -211,3 +211,25 @@ def test_synthetic_field_with_non_oil_wells():
     assert f.wells.loc[f.wells["well_id"].isin(gas["well_id"]), "bubble_point_psia"].isna().all()
     # the option leaves the field's other draws alone when off
     pd.testing.assert_frame_equal(base.truth, synthetic_field(60, seed=9, non_oil_share=0.0).truth)
+
+
+from hypothesis import given, settings  # noqa: E402
+from hypothesis import strategies as st  # noqa: E402
+
+
+@settings(max_examples=15, deadline=None)
+@given(n_months=st.integers(1, 240), j=st.floats(0.001, 20.0), ooip=st.floats(1e5, 5e7),
+       gor_noise=st.floats(0.0, 0.3), shut=st.floats(0.0, 0.3), seed=st.integers(0, 10_000))
+def test_volumes_stay_physical_for_any_knobs(n_months, j, ooip, gor_noise, shut, seed):
+    # Physical bounds: volumes non-negative, days on within the month, no oil on a shut-in
+    # month, cumulative true oil never beyond the material-balance recovery at abandonment.
+    w = simulate_well("W", start_month="2010-01", n_months=n_months, ooip_stb=ooip, productivity_bbl_d_psi=j,
+                      fluid=FLUID, seed=seed, gor_noise=gor_noise, shut_in_prob=shut)
+    m = w.monthly
+    assert (m[["oil_bbl", "gas_mcf", "water_bbl", "days_on"]] >= 0).all().all()
+    assert (m["days_on"] <= m["month"].dt.days_in_month).all()
+    assert (m.loc[m["days_on"] == 0, ["oil_bbl", "gas_mcf", "water_bbl"]] == 0).all().all()
+    r = w.noise_free["np_over_n"].to_numpy()
+    assert np.all(np.diff(r) >= 0)
+    assert r[-1] <= depletion_curve(FLUID).prediction.recovery_at_abandonment + 1e-12
+    assert 1 <= w.truth["final_stage"] <= 4
