@@ -566,8 +566,13 @@ def predict_depletion(
         r_j, gp_j = r[i_b], gp[i_b]
         R_j = rsi
         for j in range(i_b + 1, n):
+            # Eo + Efw: oil + dissolved-gas expansion and rock/water expansion per STB in place
+            # (Havlena and Odeh 1963, general material balance with m = 0, We = Wp = 0)
             expansion = (bo[j] - boi) + (rsi - rs[j]) * bg[j] + boi * c_eff * dpi[j]
 
+            # Tarner (1944) as restated by Ahmed: Gp from the material balance,
+            # Gp = [N (Eo + Efw) - Np (Bo - Rs Bg)] / Bg, must equal Gp from the GOR
+            # integral, Gp_j + (Np - Np_j)(R_j + R)/2 (trapezoid); f is monotone decreasing in Np.
             def f(rr: float, j: int = j, r_j: float = r_j, gp_j: float = gp_j, R_j: float = R_j,
                   expansion: float = expansion) -> float:
                 gp_mbe = (expansion - rr * (bo[j] - rs[j] * bg[j])) / bg[j]
@@ -592,6 +597,7 @@ def predict_depletion(
     else:
         r, gp = _muskat(pvt, relperm, grid, i_b, r, gp, boi=boi, rsi=rsi, swi=swi, cf=cf, cw=cw, pi=pi)
 
+    # saturations: So = (1 - Swi)(1 - Np/N)(Bo/Boi) / (pore-volume factor) (Ahmed; check-values 5.1)
     so = (1.0 - swi) * (1.0 - r) * (bo / boi) / v
     sw = w / v
     sg = np.clip(1.0 - so - sw, 0.0, 1.0)
@@ -600,6 +606,7 @@ def predict_depletion(
     gor = np.full(n, rsi)
     below = np.arange(n) > i_b
     ratio = krg[below] / np.maximum(kro[below], _KRO_FLOOR)
+    # instantaneous producing GOR, R = Rs + (krg/kro)(mu_o Bo)/(mu_g Bg) (Ahmed; Craft and Hawkins)
     gor[below] = rs[below] + ratio * (mu_o[below] * bo[below]) / (mu_g[below] * bg[below])
 
     # Stage boundaries read off the path
