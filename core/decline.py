@@ -50,25 +50,25 @@ MODEL_NAMES = ("exponential", "harmonic", "hyperbolic")
 # --------------------------------------------------------------------------------------
 # numerically safe helpers
 # --------------------------------------------------------------------------------------
+_TINY = 1e-100  # log1p(1e-100 x)/1e-100 == x and expm1(1e-100 y)/1e-100 == y to rounding
+
+
 def _log1p_over(b: np.ndarray, x: np.ndarray) -> np.ndarray:
-    """log(1 + b x) / b, with the limit x at b = 0 (series for |b x| small)."""
-    bx = b * x
-    small = np.abs(bx) < _SERIES_EPS
-    b_safe = np.where(small, 1.0, b)
-    exact = np.log1p(np.where(small, 0.0, bx)) / b_safe
-    # log1p(y)/b = x (1 - y/2 + y^2/3 - ...), y = b x
-    series = x * (1.0 - bx / 2.0 + bx * bx / 3.0)
-    return np.where(small, series, exact)
+    """log(1 + b x) / b, with the limit x at b = 0.
+
+    b = 0 is replaced by 1e-100, for which the quotient equals x to rounding; for any other
+    small b, log1p keeps full relative precision, so no series branch is needed.
+    """
+    b = np.asarray(b, dtype=float)
+    b_eff = np.where(np.abs(b) < _TINY, _TINY, b)
+    return np.log1p(b_eff * x) / b_eff
 
 
 def _expm1_over(c: np.ndarray, y: np.ndarray) -> np.ndarray:
-    """(exp(c y) - 1) / c, with the limit y at c = 0 (series for |c y| small)."""
-    cy = c * y
-    small = np.abs(cy) < _SERIES_EPS
-    c_safe = np.where(small, 1.0, c)
-    exact = np.expm1(np.where(small, 0.0, cy)) / c_safe
-    series = y * (1.0 + cy / 2.0 + cy * cy / 6.0)
-    return np.where(small, series, exact)
+    """(exp(c y) - 1) / c, with the limit y at c = 0 (same device as :func:`_log1p_over`)."""
+    c = np.asarray(c, dtype=float)
+    c_eff = np.where(np.abs(c) < _TINY, _TINY, c)
+    return np.expm1(c_eff * y) / c_eff
 
 
 def _params(qi: ArrayLike, di: ArrayLike, b: ArrayLike) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
@@ -422,6 +422,26 @@ def _resid_jac(theta: np.ndarray, t: np.ndarray, y: np.ndarray, need_b: bool, ex
     return r, j_u, j_b
 
 
+def _normal_eq(w, r, j_u, j_b):
+    """J^T W J (k, 3, 3) and -J^T W r (k, 3) with d r/d ln qi = -1."""
+    k = w.shape[0]
+    A = np.zeros((k, 3, 3))
+    g = np.zeros((k, 3))
+    wj_u = w * j_u
+    A[:, 0, 0] = w.sum(1)
+    A[:, 0, 1] = A[:, 1, 0] = -wj_u.sum(1)
+    A[:, 1, 1] = np.einsum("ij,ij->i", wj_u, j_u)
+    g[:, 0] = np.einsum("ij,ij->i", w, r)
+    g[:, 1] = -np.einsum("ij,ij->i", wj_u, r)
+    if j_b is not None:
+        wj_b = w * j_b
+        A[:, 0, 2] = A[:, 2, 0] = -wj_b.sum(1)
+        A[:, 1, 2] = A[:, 2, 1] = np.einsum("ij,ij->i", wj_u, j_b)
+        A[:, 2, 2] = np.einsum("ij,ij->i", wj_b, j_b)
+        g[:, 2] = -np.einsum("ij,ij->i", wj_b, r)
+    return A, g
+
+
 def _lm_batch(t, y, w0, theta0, free, *, b_max, loss, scale, max_iter, tol):
     """Batched projected Levenberg-Marquardt with IRLS robust weights.
 
@@ -429,8 +449,9 @@ def _lm_batch(t, y, w0, theta0, free, *, b_max, loss, scale, max_iter, tol):
     padding; ``theta0`` (n, 3) start values of (ln qi, ln di, b); ``free`` (n, 3) bool,
     False holds a parameter fixed (b = 0 for the exponential family, 1 for the harmonic).
     Minimises, per well, 0.5 s^2 sum w0 rho((r/s)^2) with r the log-rate residual, with
-    exact analytic derivatives, per-well damping and bounds by projection; wells leave the
-    batch as they converge.
+    exact analytic derivatives, per-well damping (Marquardt scaling by diag(J^T W J)) and
+    bounds by projection with an active set; one model evaluation per iteration (residuals
+    and Jacobian together); wells leave the batch as they converge.
     Returns theta, robust cost, final IRLS weights (n, m), residuals, iterations, converged.
     """
     n, m = t.shape
@@ -440,106 +461,83 @@ def _lm_batch(t, y, w0, theta0, free, *, b_max, loss, scale, max_iter, tol):
     s2 = scale * scale
     exp_only = bool(np.all(~free[:, 2]) and np.all(theta[:, 2] == 0.0))
     need_b = bool(free[:, 2].any())
-    lam = np.full(n, 1e-3)
+    fr_all = free.astype(float)
     converged = np.zeros(n, dtype=bool)
     n_iter = np.zeros(n, dtype=int)
-    idx = np.arange(n)  # rows still iterating (original indices)
-    tt, yy, ww = t, y, w0
-    th = theta
-    fr = free.astype(float)
+    cost_all = np.empty(n)
 
-    def robust_cost(r, w):
+    def evaluate(th, tt, yy, ww):
+        r, j_u, j_b = _resid_jac(th, tt, yy, need_b, exp_only)
         if loss == "linear":
-            return 0.5 * np.einsum("ij,ij,ij->i", w, r, r)
-        rho, _ = _rho((r * r) / s2, loss)
-        return 0.5 * s2 * np.einsum("ij,ij->i", w, rho)
+            c = 0.5 * np.einsum("ij,ij,ij->i", ww, r, r)
+            w = ww
+        else:
+            rho, drho = _rho((r * r) / s2, loss)
+            c = 0.5 * s2 * np.einsum("ij,ij->i", ww, rho)
+            w = ww * drho
+        A, g = _normal_eq(w, r, j_u, j_b)
+        return c, A, g
 
-    cost = robust_cost(_resid(th, tt, yy, exp_only), ww)
+    idx = np.arange(n)
+    tt, yy, ww = t, y, w0
+    th = theta.copy()
+    cost, A, g = evaluate(th, tt, yy, ww)
+    lam = np.full(n, LM_LAMBDA0)
     for it in range(max_iter):
         if idx.size == 0:
             break
-        r, j_u, j_b = _resid_jac(th, tt, yy, need_b, exp_only)
-        if loss == "linear":
-            w = ww
-        else:
-            w = ww * _rho((r * r) / s2, loss)[1]
-        k = idx.size
-        A = np.zeros((k, 3, 3))
-        g = np.zeros((k, 3))
-        wj_u = w * j_u
-        A[:, 0, 0] = w.sum(1)
-        A[:, 0, 1] = A[:, 1, 0] = -wj_u.sum(1)
-        A[:, 1, 1] = np.einsum("ij,ij->i", wj_u, j_u)
-        g[:, 0] = np.einsum("ij,ij->i", w, r)  # -J^T W r with d r/d ln qi = -1
-        g[:, 1] = -np.einsum("ij,ij->i", wj_u, r)
-        if j_b is not None:
-            wj_b = w * j_b
-            A[:, 0, 2] = A[:, 2, 0] = -wj_b.sum(1)
-            A[:, 1, 2] = A[:, 2, 1] = np.einsum("ij,ij->i", wj_u, j_b)
-            A[:, 2, 2] = np.einsum("ij,ij->i", wj_b, j_b)
-            g[:, 2] = -np.einsum("ij,ij->i", wj_b, r)
-        # hold fixed parameters, and parameters at a bound whose descent direction points out
-        # of the box (active set), for this step: zero rows/columns, unit diagonal
-        f = fr[idx].copy()
+        # active set: parameters held fixed, or at a bound with descent pointing outward
+        f = fr_all[idx].copy()
         at_lo = (th[:, 1:] <= lo[1:]) & (g[:, 1:] < 0.0)
         at_hi = (th[:, 1:] >= hi[1:]) & (g[:, 1:] > 0.0)
         f[:, 1:][at_lo | at_hi] = 0.0
-        A *= f[:, :, None] * f[:, None, :]
-        g *= f
-        diag = np.einsum("nii->ni", A).copy()
+        Af = A * (f[:, :, None] * f[:, None, :])
+        gf = g * f
+        diag = np.einsum("nii->ni", Af)
         dg = np.where(f > 0, np.maximum(diag, 1e-12 * (1.0 + diag.max(axis=1, keepdims=True))), 1.0)
-        c0 = cost[idx]
-        lam_i = lam[idx]
-        th_new = th.copy()
-        c_new = c0.copy()
-        accepted = np.zeros(k, dtype=bool)
-        pend = np.arange(k)  # rows (local) still looking for an acceptable step
-        for _try in range(4):
-            M = A[pend]
-            M[:, [0, 1, 2], [0, 1, 2]] = np.where(f[pend] > 0, diag[pend] + lam_i[pend, None] * dg[pend], 1.0)
-            try:
-                delta = np.linalg.solve(M, g[pend][:, :, None])[:, :, 0]
-            except np.linalg.LinAlgError:  # a singular system in the batch: pseudo-inverse
-                delta = (np.linalg.pinv(M) @ g[pend][:, :, None])[:, :, 0]
-            delta = np.where(np.isfinite(delta), delta, 0.0) * f[pend]
-            thp = th[pend]
-            cand = np.clip(thp + delta, lo, hi)
-            cand[:, 0] = np.clip(cand[:, 0], thp[:, 0] - _LN_QI_SPAN, thp[:, 0] + _LN_QI_SPAN)
-            if pend.size == k:
-                cc = robust_cost(_resid(cand, tt, yy, exp_only), ww)
-            else:
-                cc = robust_cost(_resid(cand, tt[pend], yy[pend], exp_only), ww[pend])
-            ok = np.isfinite(cc) & (cc <= c0[pend])
-            okr = pend[ok]
-            th_new[okr] = cand[ok]
-            c_new[okr] = cc[ok]
-            accepted[okr] = True
-            lam_i[okr] *= 0.2
-            bad = pend[~ok]
-            lam_i[bad] *= 8.0
-            pend = bad
-            if pend.size == 0:
-                break
-        step = np.max(np.abs(th_new - th), axis=1)
+        M = Af.copy()
+        M[:, [0, 1, 2], [0, 1, 2]] = np.where(f > 0, diag + lam[:, None] * dg, 1.0)
+        try:
+            delta = np.linalg.solve(M, gf[:, :, None])[:, :, 0]
+        except np.linalg.LinAlgError:  # a singular system in the batch: pseudo-inverse
+            delta = (np.linalg.pinv(M) @ gf[:, :, None])[:, :, 0]
+        delta = np.where(np.isfinite(delta), delta, 0.0) * f
+        cand = np.clip(th + delta, lo, hi)
+        cand[:, 0] = np.clip(cand[:, 0], th[:, 0] - _LN_QI_SPAN, th[:, 0] + _LN_QI_SPAN)
+        c_new, A_new, g_new = evaluate(cand, tt, yy, ww)
+        ok = np.isfinite(c_new) & (c_new <= cost)
+        step = np.max(np.abs(cand - th), axis=1)
         step_small = step <= 1e-10 * (1.0 + np.max(np.abs(th), axis=1))
-        rel = (c0 - c_new) <= tol * (c0 + 1e-300)
-        done = (accepted & (rel | step_small)) | (lam_i > 1e12) | (c_new <= 1e-28)
-        th = th_new
-        lam[idx] = np.maximum(lam_i, 1e-12)
-        cost[idx] = c_new
+        rel = (cost - c_new) <= tol * (cost + 1e-300)
+        done = (ok & (rel | step_small)) | (lam > 1e12) | (ok & (c_new <= 1e-28))
+        th[ok] = cand[ok]
+        cost[ok] = c_new[ok]
+        A[ok] = A_new[ok]
+        g[ok] = g_new[ok]
+        lam = np.where(ok, np.maximum(lam * 0.2, 1e-12), lam * 8.0)
         theta[idx] = th
+        cost_all[idx] = cost
         n_iter[idx] = it + 1
         converged[idx[done]] = True
         keep = ~done
         if not keep.all():
             idx = idx[keep]
-            th = th[keep]
+            th, cost, A, g, lam = th[keep], cost[keep], A[keep], g[keep], lam[keep]
             tt, yy, ww = tt[keep], yy[keep], ww[keep]
     # final residuals and IRLS weights for every well
     r = _resid(theta, t, y, exp_only)
     drho = _rho((r * r) / s2, loss)[1]
-    cost = robust_cost(r, w0)
-    return theta, cost, drho, r, n_iter, converged
+    if loss == "linear":
+        cost_all = 0.5 * np.einsum("ij,ij,ij->i", w0, r, r)
+    else:
+        cost_all = 0.5 * s2 * np.einsum("ij,ij->i", w0, _rho((r * r) / s2, loss)[0])
+    return theta, cost_all, drho, r, n_iter, converged
+
+
+#: Starts of the hyperbolic candidate (best kept): from the exponential fit with b = 0.5, from
+#: the harmonic fit with b = 1, and a high-b start (0.9 b_max, 3x the harmonic di).
+HYPERBOLIC_STARTS = ("harm",)
+LM_LAMBDA0 = 1e-3  # initial Marquardt damping (relative to diag(J^T W J))
 
 
 def _loglinear_start(t, y, w0):
@@ -556,6 +554,26 @@ def _loglinear_start(t, y, w0):
     return a, np.log(d)
 
 
+def _harmonic_start(t, y, w0, a_exp, u_exp):
+    """Harmonic start from the linear form 1/q = 1/qi + (di/qi) t (Arps 1945), regressed with
+    weights q^2 so that it approximates the log-rate fit; the exponential start where the
+    regression gives no positive intercept and slope."""
+    z = np.exp(-y)
+    w = w0 * np.exp(2.0 * y)
+    sw = np.maximum(w.sum(1), 1e-300)
+    tm = (w * t).sum(1) / sw
+    zm = (w * z).sum(1) / sw
+    dt = t - tm[:, None]
+    stt = (w * dt * dt).sum(1)
+    slope = np.where(stt > 0, (w * dt * (z - zm[:, None])).sum(1) / np.where(stt > 0, stt, 1.0), 0.0)
+    c0 = zm - slope * tm
+    good = (c0 > 0) & (slope > 0) & np.isfinite(c0) & np.isfinite(slope)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        a = np.where(good, -np.log(np.where(good, c0, 1.0)), a_exp)
+        u = np.where(good, np.log(np.where(good, slope / np.where(good, c0, 1.0), 1.0)), u_exp)
+    return a, np.clip(u, _LN_DI_MIN, _LN_DI_MAX)
+
+
 def _fit_families(t, y, w0, *, b_max, loss, scale, max_iter, tol, fixed_b=None):
     """Fit the exponential, harmonic and hyperbolic families to padded wells at once.
 
@@ -568,8 +586,9 @@ def _fit_families(t, y, w0, *, b_max, loss, scale, max_iter, tol, fixed_b=None):
     a0, u0 = _loglinear_start(t, y, w0)
     out = {}
     # exponential (b held at 0) and harmonic (b held at 1), each one batch
-    for fam, b_fix in (("exponential", 0.0), ("harmonic", 1.0)):
-        th0 = np.column_stack([a0, u0, np.full(n, b_fix)])
+    a_h, u_h = _harmonic_start(t, y, w0, a0, u0)
+    for fam, b_fix, a_s, u_s in (("exponential", 0.0, a0, u0), ("harmonic", 1.0, a_h, u_h)):
+        th0 = np.column_stack([a_s, u_s, np.full(n, b_fix)])
         free = np.ones((n, 3), dtype=bool)
         free[:, 2] = False
         res = _lm_batch(t, y, w0, th0, free, **{**kw, "b_max": max(b_max, 1.0)})
@@ -579,19 +598,24 @@ def _fit_families(t, y, w0, *, b_max, loss, scale, max_iter, tol, fixed_b=None):
     is_fixed = np.isfinite(fb)
     th_e, th_h = out["exponential"]["theta"], out["harmonic"]["theta"]
     b_hi = min(0.9 * b_max, 1.8)
-    starts = [
-        np.column_stack([th_e[:, 0], th_e[:, 1], np.full(n, min(0.4, b_max))]),
-        np.column_stack([th_h[:, 0], th_h[:, 1], np.full(n, min(1.0, b_max))]),
-        np.column_stack([th_h[:, 0], th_h[:, 1] + np.log(3.0), np.full(n, b_hi)]),
-    ]
+    all_starts = {
+        "exp": np.column_stack([th_e[:, 0], th_e[:, 1], np.full(n, min(0.5, b_max))]),
+        "harm": np.column_stack([th_h[:, 0], th_h[:, 1], np.full(n, min(1.0, b_max))]),
+        "high": np.column_stack([th_h[:, 0], th_h[:, 1] + np.log(3.0), np.full(n, b_hi)]),
+    }
+    starts = [all_starts[k] for k in HYPERBOLIC_STARTS]
     for s in starts:
         s[is_fixed, 2] = fb[is_fixed]
+    ns = len(starts)
     th0 = np.concatenate(starts)
-    free = np.ones((3 * n, 3), dtype=bool)
-    free[:, 2] = ~np.tile(is_fixed, 3)
-    T3, Y3, W3 = np.concatenate([t, t, t]), np.concatenate([y, y, y]), np.concatenate([w0, w0, w0])
+    free = np.ones((ns * n, 3), dtype=bool)
+    free[:, 2] = ~np.tile(is_fixed, ns)
+    if ns == 1:
+        T3, Y3, W3 = t, y, w0
+    else:
+        T3, Y3, W3 = np.concatenate([t] * ns), np.concatenate([y] * ns), np.concatenate([w0] * ns)
     res_h = _lm_batch(T3, Y3, W3, th0, free, **kw)
-    costs = res_h[1].reshape(3, n)
+    costs = res_h[1].reshape(ns, n)
     costs = np.where(np.isfinite(costs), costs, np.inf)
     best = np.argmin(costs, axis=0)
     rows = best * n + np.arange(n)
@@ -1023,7 +1047,7 @@ FIT_COLUMNS = [
 ]
 CANDIDATE_COLUMNS = [
     "well_id", "stream", "family", "qi", "di", "b", "n_params", "sse_log", "rmse_log",
-    "criterion_value", "converged", "chosen",
+    "robust_cost", "criterion_value", "converged", "chosen",
 ]
 _STREAM_COLS = {"oil": ("oil_rate_bbl_d", "oil_bbl"), "gas": ("gas_rate_mcf_d", "gas_mcf")}
 
@@ -1442,6 +1466,7 @@ def _fit_stream(stream, wells, wcode, mi_all, rate, days_on, uptime, dim, rs_sta
             "well_id": wells.to_numpy()[fw], "stream": stream, "family": f,
             "qi": np.exp(th[:, 0]), "di": np.exp(th[:, 1]), "b": th[:, 2], "n_params": k_par,
             "sse_log": gat[f]["sse"][fw], "rmse_log": np.sqrt(gat[f]["sse"][fw] / np.maximum(n_used[fw], 1)),
+            "robust_cost": gat[f]["cost"][fw],
             "criterion_value": crit_all[fw, j], "converged": gat[f]["converged"][fw] > 0,
             "chosen": choice[fw] == j,
         }))

@@ -36,6 +36,8 @@ from core.decline import (
     DAYS_PER_YEAR,
     DeclineSettings,
     FieldFit,
+    _cum_unchecked,
+    _log1p_over,
     _mh_cum_unchecked,
     _mh_rate_unchecked,
     _mh_time_unchecked,
@@ -64,7 +66,13 @@ def _mi(values) -> np.ndarray:
 
 
 def _mi_to_day(mi: np.ndarray) -> np.ndarray:
-    return np.asarray(mi, dtype=np.int64).astype("datetime64[M]").astype("datetime64[D]").astype(np.int64)
+    """Day number (days since 1970-01-01) of the first day of each integer month."""
+    mi = np.asarray(mi, dtype=np.int64)
+    if mi.size == 0:
+        return mi.copy()
+    lo, hi = int(mi.min()), int(mi.max())
+    table = np.arange(lo, hi + 1).astype("datetime64[M]").astype("datetime64[D]").astype(np.int64)
+    return table[mi - lo]
 
 
 def _mi_to_ts(mi: np.ndarray) -> np.ndarray:
@@ -222,23 +230,43 @@ def forecast_field(
     offs = np.cumsum(n_k) - n_k
     k = np.arange(N) - offs[rep]
     m_mi = start_mi[rep] + k
-    lo_day = _mi_to_day(m_mi).astype(float)
-    hi_day = np.minimum(_mi_to_day(m_mi + 1).astype(float), end_day[rep])
-    days_m = _mi_to_day(m_mi + 1) - _mi_to_day(m_mi)
+    day_lo = _mi_to_day(m_mi)
+    day_hi = _mi_to_day(m_mi + 1)
+    hi_day = np.minimum(day_hi.astype(float), end_day[rep])
+    days_m = day_hi - day_lo
     up = uptime[rep]
 
+    first_row = np.zeros(N, dtype=bool)
+    first_row[offs[n_k > 0]] = True
+
     def stream_volumes(okm, qi, di, b, dl, fsd):
-        """Calendar volumes and cumulative-since-start of one stream on the monthly rows."""
+        """Calendar volumes and cumulative-since-start of one stream on the monthly rows.
+
+        Np is evaluated once per month end; a month's volume is the difference with the
+        previous month end (the forecast start for the first month): exact integrals.
+        """
+        if N == 0 or not okm[rep].any():
+            return np.zeros(N), np.zeros(N)
+        wsel = okm & (n_k > 0)
+        t_sw = switch_time(di, b, dl)
+        t_sw_f = np.where(np.isfinite(t_sw), t_sw, 0.0)
+        q_sw = qi * np.exp(-_log1p_over(b, di * t_sw_f))
+        np_sw = _cum_unchecked(t_sw_f, qi, di, b)
+        tst = np.maximum((start_day - fsd) / DAYS_PER_YEAR, 0.0)
+        np_st = _mh_cum_unchecked(tst, qi, di, b, dl)
         r = rep
-        tl = np.maximum((lo_day - fsd[r]) / DAYS_PER_YEAR, 0.0)
-        th = np.maximum((hi_day - fsd[r]) / DAYS_PER_YEAR, tl)
-        tst = np.maximum((start_day[r] - fsd[r]) / DAYS_PER_YEAR, 0.0)
-        np_lo = _mh_cum_unchecked(tl, qi[r], di[r], b[r], dl[r])
-        np_hi = _mh_cum_unchecked(th, qi[r], di[r], b[r], dl[r])
-        np_st = _mh_cum_unchecked(tst, qi[r], di[r], b[r], dl[r])
+        th = np.maximum((hi_day - fsd[r]) / DAYS_PER_YEAR, tst[r])
+        hyp = _cum_unchecked(th, qi[r], di[r], b[r])
+        dt = np.maximum(th - t_sw_f[r], 0.0)
+        dlr = dl[r]
+        tail = np_sw[r] + q_sw[r] * (-np.expm1(-dlr * dt)) / dlr * DAYS_PER_YEAR
+        np_hi = np.where(th <= t_sw[r], hyp, tail)
+        np_lo = np.empty(N)
+        np_lo[1:] = np_hi[:-1]
+        np_lo[first_row] = np_st[r[first_row]]
         vol = np.maximum(np_hi - np_lo, 0.0) * up
-        since = np.maximum(np_hi - np_st, 0.0) * up
-        okr = okm[r]
+        since = np.maximum(np_hi - np_st[r], 0.0) * up
+        okr = wsel[r]
         return np.where(okr, vol, 0.0), np.where(okr, since, 0.0)
 
     oil_v, oil_since = stream_volumes(ok_o, qi_o, di_o, b_o, dl_o, fsd_o)
