@@ -190,6 +190,10 @@ def fit_solution_gas_drive(
     Sgc; neither pressure surveys nor a GOR departure from Rsi for N), when its relative
     standard error exceeds 50 %, or when it sits on a bound.
     """
+    if not isinstance(pvt, PvtTable):
+        raise ValueError("pvt must be a PvtTable")
+    if not isinstance(relperm, CoreyGasOil):
+        raise ValueError("relperm must be a CoreyGasOil")
     cum = check_range("cum_oil_bbl", cum_oil_bbl, 0.0, None, unit="bbl")
     n = cum.size
     if n < 3:

@@ -154,5 +154,7 @@ def test_bad_inputs(pvt):
                                                           "pressure_psia": np.ones(2)})
     with pytest.raises(ValueError, match="gor_scf_stb must have"):
         fit_solution_gas_drive(np.arange(1.0, 6.0), **{**ok, "gor_scf_stb": np.ones(4)})
+    with pytest.raises(ValueError, match="pvt must be"):
+        fit_solution_gas_drive(np.arange(1.0, 6.0), **{**ok, "pvt": None})
     with pytest.raises(ValueError, match="observations"):
         fit_solution_gas_drive(np.arange(1.0, 6.0), **{**ok, "gor_scf_stb": np.full(5, np.nan)})
