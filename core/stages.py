@@ -46,6 +46,7 @@ from __future__ import annotations
 
 import functools
 import math
+import warnings
 from dataclasses import dataclass
 
 import numpy as np
@@ -99,6 +100,8 @@ RISE_MIN_LOG = math.log(1.15)
 RISE_K = 4.0
 #: ... for this many consecutive producing months.
 RISE_HOLD_MONTHS = 3
+#: A GOR rise this far above Rsi counts as stage 3 even without other crossing evidence.
+UNEXPLAINED_RISE_LOG = math.log(1.5)
 #: GOR peak confirmation (see module docstring).
 PEAK_HOLD_MONTHS = 4
 PEAK_DROP_K = 3.0
@@ -212,7 +215,6 @@ def _standing_bubble_point(rsi, gamma_g, api, t_f):
     out = np.full(rsi.shape, np.nan)
     ok = np.isfinite(rsi) & np.isfinite(gamma_g) & np.isfinite(api) & np.isfinite(t_f) & (rsi > 0)
     if ok.any():
-        import warnings  # noqa: PLC0415
 
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")
@@ -236,7 +238,6 @@ def _standing_rs(p, gamma_g, api, t_f):
     out = np.full(p.shape, np.nan)
     ok = np.isfinite(p) & np.isfinite(gamma_g) & np.isfinite(api) & np.isfinite(t_f) & (p > 0)
     if ok.any():
-        import warnings  # noqa: PLC0415
 
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")
@@ -452,6 +453,7 @@ def _analyse(months: pd.DataFrame, surveys: pd.DataFrame, cumtab: pd.DataFrame, 
         res[c] = np.nan
     res["passed"] = False
     res["mb_ok"] = False
+    res["odd_note"] = ""
     for c in ("rsi_src", "pb_src", "bp_src", "peak_note", "mb_note"):
         res[c] = ""
     app = attrs.index[attrs["applicable"].to_numpy(bool)]
@@ -479,7 +481,6 @@ def _analyse(months: pd.DataFrame, surveys: pd.DataFrame, cumtab: pd.DataFrame, 
     if L >= 3:
         d2 = Z[:, 2:] - 2.0 * Z[:, 1:-1] + Z[:, :-2]
         with np.errstate(all="ignore"):
-            import warnings  # noqa: PLC0415
 
             with warnings.catch_warnings():
                 warnings.simplefilter("ignore", RuntimeWarning)
@@ -556,7 +557,6 @@ def _analyse(months: pd.DataFrame, surveys: pd.DataFrame, cumtab: pd.DataFrame, 
     plateau_end = np.where(dip_use, kbest, np.where(jr >= 0, jr, n_i))
     plateau_end = np.maximum(plateau_end, 0)
     pl = np.where(J < np.maximum(plateau_end, 1)[:, None], Z, np.nan)
-    import warnings  # noqa: PLC0415
 
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", RuntimeWarning)
@@ -712,6 +712,18 @@ def _analyse(months: pd.DataFrame, surveys: pd.DataFrame, cumtab: pd.DataFrame, 
     # only a pressure signal or a GOR signal dated before the as-of month counts
     bp_mi = np.where(bp_mi > as_of, np.nan, bp_mi)
 
+    # a GOR rise counts as stage 3 only when the bubble point is crossed by some evidence
+    # (dip, surveys, initial pressure) or the rise is far beyond noise; a rise while a survey
+    # still reads above Pb is not solution gas (gas cap, casing gas, leak: flagged)
+    big = np.where(has_rise, np.where(after2, S, -np.inf).max(axis=1) - ln_rsi > UNEXPLAINED_RISE_LOG, False)
+    rise_mi = np.where(has_rise, mi_at(jr), np.nan)
+    contra = has_rise & np.isfinite(la) & (la >= rise_mi)
+    odd = has_rise & (contra | (~np.isfinite(bp_mi) & ~big))
+    has_rise = has_rise & ~odd
+    peak_ok = peak_ok & has_rise
+    pk_mi = np.where(has_rise, pk_mi, np.nan)
+    odd_note = np.where(odd, "GOR rise above Rsi without a bubble-point crossing (survey above Pb or no "
+                             "dip): not counted as stage 3; check for gas-cap, casing or leak gas", "")
     # stage at the end of history
     stage = np.where(peak_ok, 4, np.where(has_rise, 3, np.where(np.isfinite(bp_mi), 2, 1)))
     s2_mi = np.where(has_rise, mi_at(j2), np.nan)
@@ -745,12 +757,18 @@ def _analyse(months: pd.DataFrame, surveys: pd.DataFrame, cumtab: pd.DataFrame, 
     res.loc[sids, "last_gor"] = np.exp(S[rows, n_i - 1])
     res.loc[sids, "peak_cand_mi"] = np.where(has_rise, mi_at(jp), np.nan)
     res.loc[sids, "mb_ok"] = mb_ok
+    res.loc[sids, "odd_note"] = odd_note
     res.loc[sids, "mb_note"] = ("" if mb is None else
                                 np.where(mb_ok, "stage and dates from a material-balance GOR match ("
                                          + mb["label"].astype(str) + np.char.mod(", residual %.2f", np.nan_to_num(mb["scale"])).astype(object)
                                          + "); recovery factor to date " + np.char.mod("%.3f", np.nan_to_num(mb["rnow"])).astype(object)
                                          + " (2-sigma " + np.char.mod("%.3f", np.nan_to_num(mb["lo"])).astype(object) + "-"
-                                         + np.char.mod("%.3f", np.nan_to_num(mb["hi"], posinf=0)).astype(object) + ")", ""))
+                                         + np.char.mod("%.3f", np.nan_to_num(mb["hi"], posinf=0)).astype(object) + ")",
+                                         np.where(np.isfinite(mb["scale"]),
+                                                  "material-balance GOR match not used (residual "
+                                                  + np.char.mod("%.2f", np.nan_to_num(mb["scale"])).astype(object)
+                                                  + " vs noise " + np.char.mod("%.2f", sigma).astype(object)
+                                                  + "): GOR-only rules", "")))
     res["n_surveys"] = res["n_surveys"].fillna(0)
     return res
 
@@ -856,8 +874,10 @@ def _mb_fit(Z, FS, FE, V, W, sigma, groups: np.ndarray, group_keys: list) -> dic
         if rows.size == 0:
             continue
         try:
-            curves = _mb_curves(*key)
-        except (ValueError, ArithmeticError):
+            with warnings.catch_warnings():
+                warnings.simplefilter("ignore")
+                curves = _mb_curves(*key)
+        except (ValueError, ArithmeticError, RuntimeError):
             continue
         # choose the Corey set on the wells with the most data
         sel = rows[np.argsort(-nvalid[rows], kind="stable")[:MB_SELECT_WELLS]]
@@ -868,6 +888,8 @@ def _mb_fit(Z, FS, FE, V, W, sigma, groups: np.ndarray, group_keys: list) -> dic
             tot = L.min(axis=1).sum()
             if tot < best_l:
                 best_c, best_l = c, tot
+        if best_c is None:
+            continue
         c = best_c
         grid = np.exp(np.linspace(np.log(1e-3), np.log(c["r"][-1]), MB_GRID_POINTS))
         L = _mb_loss(c, np.broadcast_to(grid, (rows.size, grid.size)), FS[rows], FE[rows], Zc[rows], V[rows], clip[rows], W[rows])
@@ -896,7 +918,6 @@ def _mb_fit(Z, FS, FE, V, W, sigma, groups: np.ndarray, group_keys: list) -> dic
             gor = np.where(dr > 1e-12, (np.interp(re, c["r"], c["gp"]) - np.interp(rs, c["r"], c["gp"])) / dr,
                            np.interp(re, c["r"], c["gor"]))
             res = np.where(V[rows], Z[rows] - np.log(gor), np.nan)
-            import warnings  # noqa: PLC0415
 
             with warnings.catch_warnings():
                 warnings.simplefilter("ignore", RuntimeWarning)
@@ -1005,7 +1026,7 @@ def _months_to_peak(res: pd.DataFrame, analog: pd.DataFrame, as_of: int) -> np.n
 
 def _evidence(res: pd.DataFrame) -> list[str]:
     cols = ["stage", "rsi", "rsi_src", "pb", "pb_src", "bp_mi", "bp_src", "s2_mi", "pk_mi", "pk_gor",
-            "peak_cand_mi", "sigma", "n_gor", "n_surveys", "last_gor"]
+            "peak_cand_mi", "sigma", "n_gor", "n_surveys", "last_gor", "mb_note", "odd_note"]
     out = []
     for r in res[cols].itertuples(index=False):
         if not np.isfinite(r.stage):
@@ -1023,10 +1044,22 @@ def _evidence(res: pd.DataFrame) -> list[str]:
                          f"{PEAK_DROP_K:g} x smoothed noise)")
         elif np.isfinite(r.peak_cand_mi):
             parts.append(f"highest smoothed GOR so far in {_fmt_month(r.peak_cand_mi)}, peak not confirmed")
+        if r.odd_note:
+            parts.append(r.odd_note)
+        if r.mb_note:
+            parts.append(r.mb_note)
         parts.append(f"latest smoothed GOR {r.last_gor:.0f} scf/STB")
         parts.append(f"{int(r.n_gor)} producing months with GOR, noise {100 * r.sigma:.0f} %, "
                      f"{int(r.n_surveys)} pressure surveys")
         out.append("; ".join(parts))
+    return out
+
+
+def _coded(prod: pd.DataFrame, codes: np.ndarray) -> pd.DataFrame:
+    """The columns the tracker reads, with an integer series id ``_sid``."""
+    cols = [c for c in ("month", "oil_bbl", "gas_mcf", "days_on", "days_in_month", "pressure_psia") if c in prod]
+    out = pd.DataFrame({c: prod[c].to_numpy() for c in cols})
+    out["_sid"] = np.asarray(codes, dtype=np.int64)
     return out
 
 
@@ -1163,15 +1196,17 @@ def track_wells(
         return pd.DataFrame({c: pd.Series(dtype=object) for c in WELL_COLUMNS})
     as_of_i = _as_of_index(production, as_of)
     prod = production[_month_index(production["month"]) <= as_of_i]
-    months, surveys, counts, cumtab = _prepare(prod, "well_id")
     all_ids = pd.Index(pd.unique(production["well_id"]), name="sid")
-    counts = counts.reindex(all_ids)
-    attrs = _attrs_from_wells(all_ids, wells, "well_id")
+    # integer series ids inside (string keys make every merge and groupby slow)
+    months, surveys, counts, cumtab = _prepare(_coded(prod, all_ids.get_indexer(prod["well_id"])), "_sid")
+    ids = pd.RangeIndex(len(all_ids), name="sid")
+    counts = counts.reindex(ids)
+    attrs = _attrs_from_wells(all_ids, wells, "well_id").set_axis(ids)
     attrs["first_mi"] = counts["first_mi"].to_numpy(float)
-    ftype = pd.Series("unknown", index=all_ids, dtype=object)
+    ftype = pd.Series("unknown", index=ids, dtype=object)
     if fluids is not None and len(fluids) and "fluid_type" in fluids:
         f = fluids.drop_duplicates("well_id").set_index("well_id")["fluid_type"].astype(str)
-        ftype = f.reindex(all_ids).fillna("unknown")
+        ftype = pd.Series(f.reindex(all_ids).fillna("unknown").to_numpy(object), index=ids)
     not_oil = ftype.isin(NOT_OIL_FLUID_TYPES).to_numpy()
     no_gas = ~counts["gas_known"].fillna(False).to_numpy(bool)
     reason = np.where(not_oil, "not an oil well by fluid type (" + ftype.to_numpy(str) + ")",
@@ -1230,10 +1265,17 @@ def track_units(
     as_of_i = _as_of_index(production, as_of)
     prod = production[_month_index(production["month"]) <= as_of_i]
     ws = well_stages.set_index("well_id")
-    unit_of = prod.groupby("well_id", sort=False)["unit"].first().astype(str)
-    units = pd.Index(sorted(pd.unique(prod["unit"].astype(str))), name="sid")
+    wcodes, wnames = pd.factorize(prod["well_id"])
+    ucodes_all, unames_all = pd.factorize(prod["unit"])
+    unames_all = np.asarray([str(u) for u in unames_all], dtype=object)
+    first_unit = pd.Series(ucodes_all).groupby(wcodes, sort=True).first()
+    unit_of = pd.Series(unames_all[first_unit.to_numpy()], index=pd.Index(np.asarray(wnames, dtype=object)))
+    units = pd.Index(sorted(set(unames_all)), name="sid")
     useries = unit_monthly(prod, well_stages)
-    months, surveys, counts, cumtab = _prepare(useries, "unit")
+    months, surveys, counts, cumtab = _prepare(_coded(useries, units.get_indexer(useries["unit"])), "_sid")
+    counts = counts.set_axis(units[counts.index.to_numpy()])
+    for t in (months, surveys, cumtab):
+        t["sid"] = units[t["sid"].to_numpy()] if len(t) else t["sid"]
     latest_gor = useries.dropna(subset=["gor_scf_stb"]).groupby("unit")["gor_scf_stb"].last()
     counts = counts.reindex(units)
     attrs = _attrs_from_wells(units, None, "unit")
@@ -1273,8 +1315,8 @@ def track_units(
     tot = {}
     for c in ("oil_bbl", "gas_mcf", "water_bbl"):
         if c in prod:
-            tot["cum_" + c] = (pd.to_numeric(prod[c], errors="coerce").groupby(prod["unit"].astype(str))
-                               .sum(min_count=1).reindex(units).to_numpy(float))
+            t_ = pd.Series(pd.to_numeric(prod[c], errors="coerce").to_numpy(float)).groupby(ucodes_all).sum(min_count=1)
+            tot["cum_" + c] = pd.Series(t_.to_numpy(), index=unames_all[t_.index.to_numpy()]).reindex(units).to_numpy(float)
         else:
             tot["cum_" + c] = np.full(len(units), np.nan)
     bp_mi = full["bp_mi"].to_numpy(float)
@@ -1330,7 +1372,11 @@ def unit_monthly(production: pd.DataFrame, well_stages: pd.DataFrame | None = No
     if well_stages is not None and len(well_stages):
         ok = well_stages.loc[well_stages["stage"].notna(), "well_id"]
         prod = prod[prod["well_id"].isin(ok)]
-    prod = prod.assign(unit=prod["unit"].astype(str))
+    ucodes, unames = pd.factorize(prod["unit"], sort=True)
+    unames = np.asarray([str(u) for u in unames], dtype=object)
+    cols = [c for c in ("month", "oil_bbl", "gas_mcf", "water_bbl", "days_on", "days_in_month", "pressure_psia")
+            if c in prod]
+    prod = pd.DataFrame({c: prod[c].to_numpy() for c in cols}).assign(unit=ucodes)
     g = prod.groupby(["unit", "month"], sort=True)
     out = g["oil_bbl"].sum().rename("oil_bbl").to_frame()
     for c in ("gas_mcf", "water_bbl"):
@@ -1346,7 +1392,9 @@ def unit_monthly(production: pd.DataFrame, well_stages: pd.DataFrame | None = No
     out["gor_scf_stb"] = np.where(out["oil_bbl"].to_numpy(float) > 0, gor, np.nan)
     out["n_producing"] = (pd.to_numeric(prod["oil_bbl"], errors="coerce") > 0).groupby(
         [prod["unit"], prod["month"]]).sum()
-    return out.reset_index()
+    out = out.reset_index()
+    out["unit"] = np.asarray(unames, dtype=object)[out["unit"].to_numpy()]
+    return out
 
 
 def _month_index_or_nan(s: pd.Series) -> np.ndarray:
