@@ -929,10 +929,9 @@ def _parse_dates(uniq: pd.Series, name: str, column: str, dayfirst: bool | None)
     return _DateParse(mi, list(reason), order)
 
 
-def _month_from_index(mi: np.ndarray) -> pd.DatetimeIndex:
-    y = mi // 12
-    m = mi % 12 + 1
-    return pd.to_datetime(pd.DataFrame({"year": y, "month": m, "day": 1})).astype("datetime64[ns]")
+def _month_from_index(mi: np.ndarray) -> np.ndarray:
+    """Month index (year * 12 + month - 1) -> datetime64[ns] month starts."""
+    return (np.asarray(mi, dtype=np.int64) - 1970 * 12).astype("datetime64[M]").astype("datetime64[ns]")
 
 
 # ---------------------------------------------------------------------------------------------
@@ -1470,7 +1469,7 @@ def load_production(
         messages.append(f"{name}: no days-on column; rates are per calendar day")
 
     prod = pd.DataFrame({
-        "well_id": wid_np[kidx], "wrank": wrank[kidx], "month_i": mi_k, "unit": unit[kidx], "oil_bbl": oil,
+        "well_id": pd.Series(wid_np[kidx], dtype=object), "wrank": wrank[kidx], "month_i": mi_k, "unit": pd.Series(unit[kidx], dtype=object), "oil_bbl": oil,
         "gas_mcf": gas, "water_bbl": water, "days_on": days, "days_on_given": given, "days_in_month": dim,
         "pressure_psia": pres[kidx], "source_row": rows[kidx].astype(np.int64)})
     extra_cols = [k for k in HEADER_FIELDS if k in mp]
@@ -1541,7 +1540,7 @@ def load_production(
         raise InputError(f"{name}: no usable rows; all {n:,} data row(s) were rejected: {why}")
 
     # derived
-    prod["month"] = _month_from_index(mik).to_numpy()
+    prod["month"] = _month_from_index(mik)
     dd_ = prod["days_on"].to_numpy()
     with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
         for vcol, rcol in (("oil_bbl", "oil_rate_bbl_d"), ("gas_mcf", "gas_rate_mcf_d"), ("water_bbl", "water_rate_bbl_d")):
@@ -1573,9 +1572,11 @@ def load_production(
         rep.add([pd.NA] * len(nooil), nooil.to_numpy(), mp["oil_bbl"], "", "info", "no oil in any month, gas only")
 
     # well header
-    wells = pd.DataFrame({"well_id": pd.unique(prod["well_id"])})
-    last_unit = prod.groupby("well_id", sort=False)["unit"].last()
-    nun = prod.groupby("well_id", sort=False)["unit"].nunique()
+    wfirst = np.r_[True, ~same[1:]] if len(same) else np.zeros(0, bool)
+    wells = pd.DataFrame({"well_id": pd.Series(prod["well_id"].to_numpy()[wfirst], dtype=object)})
+    ugrp = prod.groupby("wrank", sort=False)["unit"]
+    last_unit = pd.Series(ugrp.last().to_numpy(), index=wells["well_id"].to_numpy())
+    nun = pd.Series(ugrp.nunique().to_numpy(), index=wells["well_id"].to_numpy())
     changed = nun[nun > 1].index
     if len(changed):
         rep.add([pd.NA] * len(changed), changed.to_numpy(), mp.get("unit", "unit"), "", "info",
@@ -1619,12 +1620,13 @@ def load_production(
     if unassigned:
         messages.append(f"{name}: {unassigned:,} row(s) with no reservoir unit: 'unassigned'")
 
-    production = prod[PRODUCTION_COLUMNS].copy()
-    production["month"] = production["month"].astype("datetime64[ns]")
-    production["days_in_month"] = production["days_in_month"].astype(np.int64)
-    production["days_on_given"] = production["days_on_given"].astype(bool)
-    production["well_id"] = production["well_id"].astype(object)
-    production["unit"] = production["unit"].astype(object)
+    cols: dict[str, Any] = {c: prod[c].to_numpy() for c in PRODUCTION_COLUMNS}
+    cols["well_id"] = pd.Series(cols["well_id"], dtype=object)
+    cols["unit"] = pd.Series(cols["unit"], dtype=object)
+    cols["month"] = cols["month"].astype("datetime64[ns]")
+    cols["days_in_month"] = cols["days_in_month"].astype(np.int64)
+    cols["days_on_given"] = cols["days_on_given"].astype(bool)
+    production = pd.DataFrame(cols)
     wells = wells[WELL_COLUMNS].reset_index(drop=True)
     wells["well_id"] = wells["well_id"].astype(object)
     wells["unit"] = wells["unit"].astype(object)
