@@ -1616,6 +1616,25 @@ def load_production(
         if extra:
             rep.add([pd.NA] * len(extra), extra, "well_id", "", "info",
                     "well in the well header but not in the production file; ignored")
+    # pressure surveys above the well's initial pressure: kept, reported per row
+    pi_row = prod["well_id"].map(dict(zip(wells["well_id"], wells["initial_pressure_psia"]))).to_numpy(dtype=float)
+    pr = prod["pressure_psia"].to_numpy(dtype=float)
+    above = np.isfinite(pr) & np.isfinite(pi_row) & (pr > pi_row * 1.0001)
+    if above.any():
+        i2 = np.flatnonzero(above)
+        rep.add(prod["source_row"].to_numpy()[i2], prod["well_id"].to_numpy()[i2], mp.get("pressure_psia", ""),
+                [f"{x:g}" for x in pr[i2]], "info",
+                [f"pressure above the initial pressure {x:g} psia; kept as given" for x in pi_row[i2]])
+    # gas column present but zero in every month with oil: GOR 0 throughout
+    if "gas_mcf" in mp:
+        has_oil = prod["oil_bbl"].to_numpy() > 0
+        gsum = pd.Series(np.where(has_oil, prod["gas_mcf"].to_numpy(), 0.0)).groupby(prod["wrank"].to_numpy()).sum()
+        osum = pd.Series(has_oil.astype(int)).groupby(prod["wrank"].to_numpy()).sum()
+        zero_gor = (gsum.to_numpy() == 0) & (osum.to_numpy() > 0)
+        if zero_gor.any():
+            wz = wells["well_id"].to_numpy()[zero_gor]
+            rep.add([pd.NA] * len(wz), wz, mp["gas_mcf"], "0", "info",
+                    "gas is zero in every month with oil (GOR 0): gas may not be metered")
     unassigned = int((prod["unit"] == "unassigned").sum())
     if unassigned:
         messages.append(f"{name}: {unassigned:,} row(s) with no reservoir unit: 'unassigned'")

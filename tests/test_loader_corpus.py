@@ -325,3 +325,20 @@ def test_200000_rows_generated(tmp_path):
 def test_every_readable_corpus_file_keeps_the_accounting(name):
     res = load_production(DATA / name, as_of=AS_OF)
     check_accounting(res)
+
+
+def test_pressure_above_initial_and_zero_gor_reported():
+    csv = (b"Well,Month,Oil,Gas,Pressure (psia),Initial Pressure (psia)\n"
+           b"Lark 30,2021-01,100,0,3100,3000\nLark 30,2021-02,90,0,2900,3000\n")
+    res = load_production(csv, file_name="p.csv", as_of=AS_OF)
+    check_accounting(res)
+    ln = line(res, 2, "Pressure (psia)", "info")
+    assert "above the initial pressure 3000" in ln["reason"].iloc[0]
+    assert res.production["pressure_psia"].iloc[0] == 3100.0  # kept
+    assert "GOR 0" in line(res, None, "Gas", "info")["reason"].iloc[0]
+
+
+def test_numeric_well_ids_keep_leading_zeros():
+    csv = b"API No,Month,Oil\n0042123456,2021-01,5\n0042123456,2021-02,4\n"
+    res = load_production(csv, file_name="z.csv", as_of=AS_OF)
+    assert list(res.production["well_id"]) == ["0042123456", "0042123456"]
