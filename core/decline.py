@@ -1052,6 +1052,25 @@ CANDIDATE_COLUMNS = [
 _STREAM_COLS = {"oil": ("oil_rate_bbl_d", "oil_bbl"), "gas": ("gas_rate_mcf_d", "gas_mcf")}
 
 
+def sorted_well_codes(production: pd.DataFrame):
+    """The table sorted by well and month (a view when already sorted), the sorted well ids,
+    each row's well code and its month as an integer (months since 1970-01)."""
+    codes, uniques = pd.factorize(production["well_id"], sort=True)
+    mi = _month_int(pd.to_datetime(production["month"]).to_numpy())
+    order = np.lexsort((mi, codes))
+    df = production
+    if order.size and (np.any(order != np.arange(order.size)) or codes.min() < 0):
+        order = order[codes[order] >= 0]  # rows without a well id cannot be placed
+        df = production.take(order)
+        codes, mi = codes[order], mi[order]
+    return df, pd.Index(uniques), codes.astype(np.int64), mi
+
+
+def _median3(a: np.ndarray, b: np.ndarray, c: np.ndarray) -> np.ndarray:
+    """Element-wise median of three arrays (NaN propagates)."""
+    return np.maximum(np.minimum(a, b), np.minimum(np.maximum(a, b), c))
+
+
 def _month_int(month: pd.Series | np.ndarray) -> np.ndarray:
     m = np.asarray(month, dtype="datetime64[M]")
     return m.astype(np.int64)
@@ -1119,7 +1138,11 @@ def _step_starts(w, lr, mi, k, ratio, n_wells):
     pos = np.arange(n) - start_idx
     counts = np.bincount(w, minlength=n_wells)
     n_in = counts[w]
-    roll = pd.Series(lr).rolling(k).median().to_numpy()  # median of lr[i-k+1 .. i]
+    if k == 3:  # median of lr[i-2 .. i]
+        roll = np.full(n, np.nan)
+        roll[2:] = _median3(lr[:-2], lr[1:-1], lr[2:])
+    else:
+        roll = pd.Series(lr).rolling(k).median().to_numpy()  # median of lr[i-k+1 .. i]
     prev = np.full(n, np.nan)
     prev[1:] = roll[:-1]
     prev[pos < k] = np.nan
@@ -1184,11 +1207,8 @@ def fit_field(
     need = {"well_id", "month"}
     if not need <= set(production.columns):
         raise InputError(f"production table lacks columns {sorted(need - set(production.columns))}")
-    df = production.sort_values(["well_id", "month"], kind="stable")
-    wells = pd.Index(pd.unique(df["well_id"]))
+    df, wells, wcode, mi_all = sorted_well_codes(production)
     n_wells = len(wells)
-    wcode = pd.Index(wells).get_indexer(df["well_id"])
-    mi_all = _month_int(pd.to_datetime(df["month"]).to_numpy())
     dim = (df["days_in_month"].to_numpy(float) if "days_in_month" in df
            else pd.to_datetime(df["month"]).dt.days_in_month.to_numpy(float))
     days_on = df["days_on"].to_numpy(float) if "days_on" in df else dim.copy()
@@ -1267,7 +1287,9 @@ def _fit_stream(stream, wells, wcode, mi_all, rate, days_on, uptime, dim, rs_sta
     rs = np.fmax(rs_stage, rs_step)
     src = np.where(np.isnan(rs), "none", np.where(rs == rs_stage, "stage tracker", "step change"))
     # ---- peak of the 3-month running median at or after the regime start
-    sm = pd.Series(lr_v).rolling(3, center=True).median().to_numpy()
+    sm = np.full(lr_v.size, np.nan)
+    if lr_v.size >= 3:
+        sm[1:-1] = _median3(lr_v[:-2], lr_v[1:-1], lr_v[2:])
     first = np.r_[True, w_v[1:] != w_v[:-1]] if w_v.size else np.zeros(0, bool)
     last = np.r_[w_v[1:] != w_v[:-1], True] if w_v.size else np.zeros(0, bool)
     sm = np.where(first | last | ~np.isfinite(sm), lr_v, sm)

@@ -41,6 +41,7 @@ from core.decline import (
     _mh_cum_unchecked,
     _mh_rate_unchecked,
     _mh_time_unchecked,
+    sorted_well_codes,
     switch_time,
 )
 from core.economics import economic_limit_from_inputs
@@ -143,21 +144,18 @@ def forecast_field(
     need = {"well_id", "month"}
     if not need <= set(production.columns):
         raise InputError(f"production table lacks columns {sorted(need - set(production.columns))}")
-    df = production.sort_values(["well_id", "month"], kind="stable")
-    months = pd.to_datetime(df["month"])
+    df, wells, code, mi = sorted_well_codes(production)
+    n_w = len(wells)
     if as_of is not None:
         cut = pd.Timestamp(as_of)
-        cut = pd.Timestamp(year=cut.year, month=cut.month, day=1)
-        keep = (months <= cut).to_numpy()
-        df, months = df[keep], months[keep]
-    wells = pd.Index(pd.unique(production.sort_values("well_id", kind="stable")["well_id"]))
-    n_w = len(wells)
-    code = wells.get_indexer(df["well_id"])
-    mi = _mi(months.to_numpy())
+        keep = mi <= (cut.year - 1970) * 12 + cut.month - 1
+        if not keep.all():
+            df, code, mi = df[keep], code[keep], mi[keep]
     oil = np.nan_to_num(df["oil_bbl"].to_numpy(float), nan=0.0, posinf=0.0) if "oil_bbl" in df else np.zeros(len(df))
     gas = np.nan_to_num(df["gas_mcf"].to_numpy(float), nan=0.0, posinf=0.0) if "gas_mcf" in df else np.zeros(len(df))
     oil, gas = np.maximum(oil, 0.0), np.maximum(gas, 0.0)
-    dim = (df["days_in_month"].to_numpy(float) if "days_in_month" in df else months.dt.days_in_month.to_numpy(float))
+    dim = (df["days_in_month"].to_numpy(float) if "days_in_month" in df
+           else pd.to_datetime(df["month"]).dt.days_in_month.to_numpy(float))
     don = np.nan_to_num(df["days_on"].to_numpy(float), nan=0.0) if "days_on" in df else dim.copy()
     # ---- history per well
     cum_oil = np.bincount(code, weights=oil, minlength=n_w)
@@ -282,7 +280,7 @@ def forecast_field(
     oil_since = np.where(np.isfinite(oil_since), oil_since, 0.0)
     gas_since = np.where(np.isfinite(gas_since), gas_since, 0.0)
     monthly = pd.DataFrame({
-        "well_id": wells.to_numpy()[rep],
+        "well_id": pd.array(wells.to_numpy(), dtype="str").take(rep),
         "month": m_mi.astype("datetime64[M]").astype("datetime64[ns]"),
         "kind": "forecast",
         "oil_bbl": oil_v,
