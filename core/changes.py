@@ -29,6 +29,7 @@ __all__ = [
     "merge_well_headers",
     "merge_loads",
     "compare_runs",
+    "compare_units",
     "summarise_changes",
     "status_transitions",
 ]
@@ -491,3 +492,41 @@ def status_transitions(changes: pd.DataFrame) -> pd.DataFrame:
     c = changes[changes["planning_status_changed"]]
     g = c.groupby(["planning_status_prev", "planning_status_new"], sort=True).size()
     return g.rename("n_wells").reset_index()
+
+
+def compare_units(previous_units: pd.DataFrame, new_units: pd.DataFrame) -> pd.DataFrame:
+    """Per reservoir unit: previous and new stage, planning status, EUR and remaining.
+
+    Uses the ``unit``, ``stage``, ``planning_status``, ``eur_oil_bbl`` and
+    ``remaining_oil_bbl`` columns of ``RunResult.units`` (missing ones count as unknown).
+    Returns one row per unit of either run, sorted by ``unit``: ``stage_prev``,
+    ``stage_new``, ``planning_status_prev``, ``planning_status_new``, ``eur_oil_bbl_prev``,
+    ``eur_oil_bbl_new``, ``eur_change_bbl``, ``remaining_oil_bbl_prev``,
+    ``remaining_oil_bbl_new``, ``remaining_change_bbl`` and the flags ``new_unit``,
+    ``dropped_unit``, ``stage_changed``, ``planning_status_changed``.
+    """
+    def prep(name: str, df: pd.DataFrame) -> pd.DataFrame:
+        if not isinstance(df, pd.DataFrame) or "unit" not in df.columns:
+            raise InputError(f"{name} must be a units table with a 'unit' column")
+        return _prep_wells(name, df.drop(columns=["well_id"], errors="ignore").rename(columns={"unit": "well_id"}))
+
+    a, b = prep("previous_units", previous_units), prep("new_units", new_units)
+    m = a.merge(b, on="well_id", how="outer", suffixes=("_prev", "_new"), indicator=True, sort=True)
+    in_both = (m["_merge"] == "both").to_numpy()
+    out = pd.DataFrame({"unit": m["well_id"].astype("str")})
+    out["stage_prev"] = pd.array(m["stage_prev"], dtype="Int64")
+    out["stage_new"] = pd.array(m["stage_new"], dtype="Int64")
+    for side in ("prev", "new"):
+        col = m[f"planning_status_{side}"]
+        out[f"planning_status_{side}"] = col.astype(object).where(col.notna(), "").astype("str")
+    for c in ("eur_oil_bbl", "remaining_oil_bbl"):
+        out[f"{c}_prev"] = m[f"{c}_prev"].astype(float)
+        out[f"{c}_new"] = m[f"{c}_new"].astype(float)
+    out["eur_change_bbl"] = out["eur_oil_bbl_new"] - out["eur_oil_bbl_prev"]
+    out["remaining_change_bbl"] = out["remaining_oil_bbl_new"] - out["remaining_oil_bbl_prev"]
+    out["new_unit"] = (m["_merge"] == "right_only").to_numpy()
+    out["dropped_unit"] = (m["_merge"] == "left_only").to_numpy()
+    sp, sn = out["stage_prev"].fillna(-1), out["stage_new"].fillna(-1)  # -1: no stage
+    out["stage_changed"] = in_both & (sp != sn).to_numpy(dtype=bool)
+    out["planning_status_changed"] = in_both & (out["planning_status_prev"] != out["planning_status_new"]).to_numpy()
+    return out.reset_index(drop=True)

@@ -500,6 +500,23 @@ class StoredRun:
         names = {f.name for f in dataclasses.fields(RunSettings)}
         return RunSettings(**{k: v for k, v in self.settings.items() if k in names})
 
+    def to_run_result(self) -> Any:
+        """The run as a ``core.run.RunResult`` (as the dashboard shows a fresh run)."""
+        from core.run import RunResult
+
+        have = {
+            "wells": self.wells, "monthly": self.monthly, "units": self.units,
+            "load_report": self.load_report, "candidates": self.candidates, "stages": self.stages,
+            "fits": self.fits, "fluids": self.fluids, "settings": self.run_settings(),
+            "version": self.version, "as_of": self.as_of_month, "summary": dict(self.summary),
+            "inputs": dict(self.inputs), "timings": dict(self.timings),
+        }
+        for k in _RUN_FRAMES:  # a table the run did not have comes back empty
+            if have[k] is None:
+                have[k] = pd.DataFrame()
+        names = {f.name for f in dataclasses.fields(RunResult)}
+        return RunResult(**{k: v for k, v in have.items() if k in names})
+
 
 def _ts(v: Any) -> pd.Timestamp | None:
     if v is None:

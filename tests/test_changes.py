@@ -13,7 +13,14 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from numpy.testing import assert_allclose
 
-from core.changes import compare_runs, merge_loads, merge_production, status_transitions, summarise_changes
+from core.changes import (
+    compare_runs,
+    compare_units,
+    merge_loads,
+    merge_production,
+    status_transitions,
+    summarise_changes,
+)
 from core.validation import InputError
 
 M = pd.Timestamp
@@ -300,6 +307,11 @@ def test_monthly_update_two_months_of_the_sample_field(tmp_path):
     assert prev.id == rid9
     pd.testing.assert_frame_equal(prev.wells, r9.wells)
     assert prev.run_settings() == settings
+    again = prev.to_run_result()  # what the dashboard shows when reopened
+    for name in ("wells", "monthly", "units", "load_report", "candidates", "stages", "fits", "fluids"):
+        pd.testing.assert_frame_equal(getattr(again, name), getattr(r9, name))
+    assert again.as_of == r9.as_of and again.settings == r9.settings and again.version == r9.version
+    assert again.summary == r9.summary
     new = store.load_run(rid10)
     assert new.as_of_month == M("2026-10-01") and prev.as_of_month == M("2026-09-01")
     assert new.inputs["override_entry_ids"] != []
@@ -314,6 +326,9 @@ def test_monthly_update_two_months_of_the_sample_field(tmp_path):
     # -1 stands for "no stage" (NA), which no real stage (1-4) equals.
     expect_stage = a["stage"].astype("Int64").fillna(-1) != b["stage"].astype("Int64").fillna(-1)
     assert ch.loc[a.index, "stage_changed"].tolist() == expect_stage.tolist()
+    cu = compare_units(prev.units, new.units)
+    assert not cu["new_unit"].any() and not cu["dropped_unit"].any()
+    assert len(cu) == r9.units["unit"].nunique()
     s = summarise_changes(ch.reset_index())
     assert s["eur_oil_bbl_new"] == pytest.approx(float(eb.sum()), rel=1e-12)
     assert s["eur_oil_bbl_prev"] == pytest.approx(float(ea.sum()), rel=1e-12)
@@ -343,3 +358,20 @@ def test_merge_of_overlapping_parts_rebuilds_the_whole(n_wells, n_months, split,
     n_repeated = len(first.merge(later[["well_id", "month"]], on=["well_id", "month"]))
     assert int(report.loc[report["action"] == "duplicate_dropped", "n_months"].sum()) == n_repeated
     assert (report["action"] == "conflict").sum() == 0
+
+
+def test_compare_units_by_hand():
+    prev = pd.DataFrame({"unit": ["North", "South"], "stage": pd.array([2, 3], dtype="Int64"),
+                         "planning_status": ["window_open", "window_closing"],
+                         "eur_oil_bbl": [1.0e6, 5.0e5], "remaining_oil_bbl": [4.0e5, 1.0e5]})
+    new = pd.DataFrame({"unit": ["North", "West"], "stage": pd.array([3, pd.NA], dtype="Int64"),
+                        "planning_status": ["window_closing", "not_applicable"],
+                        "eur_oil_bbl": [0.98e6, 2.0e5], "remaining_oil_bbl": [3.7e5, 2.0e5]})
+    ch = compare_units(prev, new).set_index("unit")
+    assert list(ch.index) == ["North", "South", "West"]
+    assert ch["stage_changed"].tolist() == [True, False, False]
+    assert ch["planning_status_changed"].tolist() == [True, False, False]
+    assert ch["new_unit"].tolist() == [False, False, True] and ch["dropped_unit"].tolist() == [False, True, False]
+    # Hand calculation: 980,000 - 1,000,000 = -20,000 bbl; 370,000 - 400,000 = -30,000 bbl.
+    assert ch.loc["North", "eur_change_bbl"] == pytest.approx(-20_000.0, abs=1e-6)
+    assert ch.loc["North", "remaining_change_bbl"] == pytest.approx(-30_000.0, abs=1e-6)
