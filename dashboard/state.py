@@ -646,9 +646,13 @@ def well_ids(run) -> list[str]:
 
 
 def field_totals(run) -> pd.DataFrame:
-    """Field oil rate per month (actual and forecast) from the run's monthly table.
+    """Field oil rate per month from the run's monthly table: ``month``, ``kind``, ``oil_bbl``,
+    ``oil_rate_bopd``.
 
-    The rate is the month's field oil volume over the month's calendar days [bbl/d].
+    Every well's volume in a month is summed whatever its kind (a well whose history ends
+    early is already forecast while others still report); months up to the run's as-of month
+    are ``actual``, later ones ``forecast``, and the forecast line starts at the last actual
+    month so the two join. The rate is the month's volume over its calendar days [bbl/d].
     """
     return _field_totals(run_key(), run)
 
@@ -656,9 +660,12 @@ def field_totals(run) -> pd.DataFrame:
 @st.cache_data(max_entries=8, show_spinner=False)
 def _field_totals(key: str, _run) -> pd.DataFrame:
     m = _run.monthly
-    g = m.groupby(["month", "kind"], as_index=False, sort=True)["oil_bbl"].sum()
+    g = m.groupby("month", as_index=False, sort=True)["oil_bbl"].sum()
     g["oil_rate_bopd"] = g["oil_bbl"] / g["month"].dt.days_in_month
-    return g
+    as_of = pd.Timestamp(_run.as_of) if _run.as_of is not None else g["month"].max()
+    actual = g.loc[g["month"] <= as_of].assign(kind="actual")
+    forecast = g.loc[g["month"] >= as_of].assign(kind="forecast")
+    return pd.concat([actual, forecast], ignore_index=True)
 
 
 def well_row(run, well_id: str) -> pd.Series:
@@ -746,38 +753,48 @@ def unit_names(run) -> list[str]:
     return run.units["unit"].astype(str).tolist()
 
 
-def unit_expected_path(run, unit: str) -> pd.DataFrame | None:
-    """Expected GOR and pressure path of a unit from the material-balance history match.
+def unit_history_match(unit: str) -> dict[str, Any] | None:
+    """The unit's material-balance history match (``core.history_match.history_match_unit``):
+    ``expected`` (month, gor_scf_stb, pressure_psia of the fitted path), ``ooip_stb``,
+    ``ooip_low_stb``, ``ooip_high_stb``, ``sgc``, ``recovery_factor_to_date`` and ``messages``;
+    None with the reason in ``"error"`` when the unit cannot be matched. Cached per load."""
+    return _unit_history_match(load_key(), str(unit))
 
-    Returns None when ``core.history_match`` is not available or cannot match the unit.
-    """
+
+@st.cache_data(max_entries=64, show_spinner="Matching the unit's material balance")
+def _unit_history_match(key: str, unit: str) -> dict[str, Any]:
+    import warnings
+
+    from core.history_match import history_match_unit
+
+    load = current_load()
     try:
-        from core import history_match
-    except ImportError:
-        return None
-    fn = getattr(history_match, "expected_path", None) or getattr(history_match, "unit_expected_path", None)
-    if fn is None:
-        return None
-    try:
-        return fn(current_load(), run, unit)
-    except Exception:
-        return None
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")  # the match states its caveats in ``messages``
+            m = history_match_unit(load.production, load.wells, unit)
+    except ValueError as exc:
+        return {"error": str(exc)}
+    o = m.observed
+    expected = pd.DataFrame({"month": o["month"], "gor_scf_stb": o["gor_fit_scf_stb"],
+                             "pressure_psia": o["pressure_fit_psia"]})
+    return {
+        "expected": expected, "ooip_stb": m.ooip_stb, "ooip_low_stb": m.ooip_low_stb,
+        "ooip_high_stb": m.ooip_high_stb, "sgc": m.sgc, "recovery_factor_to_date": m.recovery_factor_to_date,
+        "messages": list(m.messages),
+    }
 
 
 def unit_observed(unit: str) -> pd.DataFrame:
-    """Observed unit history for the planning chart: ``month``, ``gor_scf_stb`` (unit gas over
-    unit oil) and ``pressure_psia`` (mean of the surveys in the month)."""
-    return _unit_observed(load_key(), unit)
+    """Observed unit history (``core.history_match.unit_history``): ``month``, ``gor_scf_stb``
+    (unit gas over unit oil), ``pressure_psia`` (mean of the month's surveys)."""
+    return _unit_observed(load_key(), str(unit))
 
 
-@st.cache_data(max_entries=32, show_spinner=False)
+@st.cache_data(max_entries=64, show_spinner=False)
 def _unit_observed(key: str, unit: str) -> pd.DataFrame:
-    p = current_load().production
-    u = p.loc[p["unit"].astype(str) == str(unit)]
-    g = u.groupby("month", as_index=False).agg(oil_bbl=("oil_bbl", "sum"), gas_mcf=("gas_mcf", "sum"),
-                                               pressure_psia=("pressure_psia", "mean"))
-    g["gor_scf_stb"] = (1000.0 * g["gas_mcf"] / g["oil_bbl"].where(g["oil_bbl"] > 0))
-    return g
+    from core.history_match import unit_history
+
+    return unit_history(current_load().production, unit)
 
 
 # ---- exports -----------------------------------------------------------------------------------

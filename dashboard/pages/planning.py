@@ -29,18 +29,28 @@ if names:
     c[2].metric("Months since bubble point", state.number_text(row.get("months_since_bubble_point"), "{:.0f}"))
     c[3].metric("Est. months to GOR peak", state.number_text(row.get("months_to_gor_peak_est"), "{:.0f}"))
     c[4].metric("Wells", f"{int(row['n_wells'])}")
-    expected = state.unit_expected_path(run, unit)
+    match = state.unit_history_match(unit)
+    expected = match.get("expected") if match else None
     st.plotly_chart(
         charts.gor_pressure_figure(
             state.unit_observed(unit),
             expected=expected,
+            rsi_scf_stb=row.get("rsi_scf_stb"),
             events={"bubble point": row.get("bubble_point_date"), "GOR peak": row.get("gor_peak_date")},
-            title=f"Unit {unit}: observed GOR and pressure" + (" beside the history match" if expected is not None else ""),
+            title=f"Unit {unit}: observed GOR and pressure beside the material-balance history match",
         ),
         key="chart_unit_path",
     )
     if expected is None:
-        st.caption("No material-balance history match for this unit: observed path only.")
+        st.caption("No material-balance history match for this unit: " + match.get("error", "not available"))
+    else:
+        m = st.columns(3)
+        m[0].metric("Oil in place, history match", f"{match['ooip_stb']:,.0f} STB",
+                    help=f"80 % interval {match['ooip_low_stb']:,.0f} to {match['ooip_high_stb']:,.0f} STB")
+        m[1].metric("Critical gas saturation", f"{match['sgc']:.3f}")
+        m[2].metric("Recovery to date", f"{match['recovery_factor_to_date']:.1%}")
+        for message in match["messages"]:
+            st.caption(f"History match: {message}")
 
 st.subheader("Waterflood planning flags")
 with st.form("flag_form"):

@@ -21,14 +21,16 @@ row = state.well_row(run, well)
 history = state.well_history(well)
 forecast = state.well_forecast(run, well)
 
-c = st.columns(7)
+c = st.columns(4)
 c[0].metric("Status", str(row["status"]))
 c[1].metric("Model", str(row["model"]) if pd.notna(row["model"]) else "none")
 c[2].metric("b", "" if pd.isna(row["b"]) else f"{row['b']:.2f}")
-c[3].metric("EUR oil", "" if pd.isna(row["eur_oil_bbl"]) else f"{row['eur_oil_bbl']:,.0f} bbl")
-c[4].metric("Remaining oil", "" if pd.isna(row["remaining_oil_bbl"]) else f"{row['remaining_oil_bbl']:,.0f} bbl")
-c[5].metric("Economic-limit month", state.month_text(row["econ_limit_date"]))
-c[6].metric("Stage", state.stage_text(row))
+c[3].metric("Stage", state.stage_text(row))
+c = st.columns(4)
+c[0].metric("EUR oil", "" if pd.isna(row["eur_oil_bbl"]) else f"{row['eur_oil_bbl']:,.0f} bbl")
+c[1].metric("Remaining oil", "" if pd.isna(row["remaining_oil_bbl"]) else f"{row['remaining_oil_bbl']:,.0f} bbl")
+c[2].metric("Economic-limit month", state.month_text(row["econ_limit_date"]))
+c[3].metric("Cumulative oil", "" if pd.isna(row["cum_oil_bbl"]) else f"{row['cum_oil_bbl']:,.0f} bbl")
 st.caption(
     f"Unit {row['unit']} · fluid {row['fluid_type']} · planning status "
     f"{charts.PLANNING_LABELS.get(row['planning_status'], row['planning_status'])}"
