@@ -794,6 +794,8 @@ MB_REFINE_POINTS = 21
 #: At most this many blocks of consecutive producing months enter the fit (block GOR =
 #: summed gas / summed oil, weighted by its number of months).
 MB_MAX_BLOCKS = 48
+#: Wells per vectorised chunk of the misfit (keeps temporaries small).
+MB_CHUNK = 256
 #: Fit accepted when its robust residual scale is at most this multiple of the noise level
 #: (plus MB_FIT_ABS_TOL); otherwise the GOR-only rules stand.
 MB_FIT_TOL = 1.3
@@ -837,7 +839,16 @@ def _mb_curves(api: float, gamma_g: float, t_f: float, pb: float, pi: float) -> 
 
 def _mb_loss(curve: dict, rnow: np.ndarray, fs: np.ndarray, fe: np.ndarray, z: np.ndarray,
              valid: np.ndarray, clip: np.ndarray, wt: np.ndarray) -> np.ndarray:
-    """Robust misfit of ln GOR for recovery factors ``rnow`` (wells x candidates)."""
+    """Robust misfit of ln GOR for recovery factors ``rnow`` (wells x candidates), in chunks."""
+    out = np.empty(rnow.shape)
+    for a in range(0, rnow.shape[0], MB_CHUNK):
+        b = slice(a, a + MB_CHUNK)
+        out[b] = _mb_loss_chunk(curve, rnow[b], fs[b], fe[b], z[b], valid[b], clip[b], wt[b])
+    return out
+
+
+def _mb_loss_chunk(curve: dict, rnow: np.ndarray, fs: np.ndarray, fe: np.ndarray, z: np.ndarray,
+                   valid: np.ndarray, clip: np.ndarray, wt: np.ndarray) -> np.ndarray:
     r, gp = curve["r"], curve["gp"]
     rmax = r[-1]
     w, k = rnow.shape
