@@ -975,8 +975,16 @@ def _empty_report() -> pd.DataFrame:
 
 
 def _raw_values(col: pd.Series, idx: np.ndarray) -> list[str]:
-    vals = col.to_numpy(dtype=object)[idx]
-    return ["" if (v is None or (isinstance(v, float) and np.isnan(v))) else str(v)[:80] for v in vals]
+    vals = col.iloc[np.asarray(idx)].to_numpy(dtype=object)
+    out = []
+    for v in vals:  # report lines only (few), not the main path
+        if v is None or (isinstance(v, float) and np.isnan(v)):
+            out.append("")
+        elif isinstance(v, (float, np.floating)) and float(v).is_integer() and abs(v) < 1e15:
+            out.append(str(int(v)))
+        else:
+            out.append(str(v)[:80])
+    return out
 
 
 # ---------------------------------------------------------------------------------------------
@@ -1327,6 +1335,13 @@ def load_production(
         idx = np.flatnonzero(bad)
         rep.add(rows[idx], "", mp["well_id"], _raw_values(wcol, idx), "rejected", "missing well id")
         reject |= bad
+    wu_formula = np.append(wu.str.startswith("=").to_numpy(dtype=bool), False)
+    fbad = wu_formula[np.where(wcodes >= 0, wcodes, len(wu))] & ~reject
+    if fbad.any():
+        idx = np.flatnonzero(fbad)
+        rep.add(rows[idx], "", mp["well_id"], _raw_values(wcol, idx), "rejected",
+                "well id is a formula with no saved value (formulas are never evaluated)")
+        reject |= fbad
 
     # month
     mcol = f[mp["month"]]

@@ -390,3 +390,11 @@ def test_round_trip_xlsx_exact(df):
     data = _xlsx({"P": [list(df.columns)] + df.astype(object).values.tolist()})
     res = load_production(data, file_name="rt.xlsx", as_of="2030-01")
     _compare(df, res)
+
+
+def test_xlsx_formula_in_well_id_not_taken_as_a_name():
+    data = _xlsx({"S": [["Well", "Month", "Oil"], ["A", "2021-01", 10], ['=UPPER("b")', "2021-02", 9]]})
+    res = load_production(data, file_name="g.xlsx", as_of=AS_OF)
+    _accounting(res)
+    assert list(res.production["well_id"]) == ["A"]
+    assert "formula" in res.report.set_index("row").loc[3, "reason"]
