@@ -1104,3 +1104,49 @@ blue dotted, stages sky blue / yellow / orange / reddish purple.
 **Data.** Everything runs on this machine; the app listens on 127.0.0.1 and has no login of
 its own. Put it behind your organisation's access control before sharing it.
 """
+
+
+# ---- runs kept in the store and what changed since the last one ---------------------------------
+def save_run_to_store(run, author: str = "", note: str = "") -> int | None:
+    """Keep the run (with its dataset) in the store in one transaction; returns the run id."""
+    store = _store()
+    if store is None:
+        raise InputError("the store cannot be opened: the run is not kept")
+    run_id = store.save_run(run, field=store_field(), load=current_load(), author=(author or "").strip(),
+                            note=(note or "").strip())
+    st.session_state["dd_saved_runs"] = {**st.session_state.get("dd_saved_runs", {}), run_key(): run_id}
+    return run_id
+
+
+def saved_run_id() -> int | None:
+    """The store's id of the current run when this session saved it."""
+    return st.session_state.get("dd_saved_runs", {}).get(run_key())
+
+
+def changes_since_saved(run) -> dict[str, Any] | None:
+    """What changed between the field's last stored run (other than this one) and ``run``:
+    ``previous`` (id, as-of month, time), ``summary`` (``core.changes.summarise_changes``),
+    ``wells`` (changed wells, ``core.changes.compare_runs``) and ``units``
+    (``core.changes.compare_units``); None when the store has no earlier run of the field."""
+    store = _store()
+    if store is None:
+        return None
+    try:
+        from core.changes import compare_runs, compare_units, summarise_changes
+
+        before = saved_run_id()
+        prev = store.previous_run(store_field(), before=before) if before else store.latest_run(store_field())
+        if prev is None:
+            return None
+        wells = compare_runs(prev.wells, run.wells)
+        units = compare_units(prev.units, run.units) if prev.units is not None and not prev.units.empty else pd.DataFrame()
+    except (ValueError, OSError, ImportError) as exc:
+        st.session_state[LAST_ERROR] = f"the change report could not be made: {exc}"
+        return None
+    return {
+        "previous": {"id": prev.id, "as_of": month_text(prev.as_of_month),
+                     "created": prev.created_at.strftime("%Y-%m-%d %H:%M UTC") if prev.created_at is not None else ""},
+        "summary": summarise_changes(wells),
+        "wells": wells.loc[wells["any_change"]].reset_index(drop=True),
+        "units": units,
+    }

@@ -51,6 +51,13 @@ def sample_run():
     return load, run_field(load, settings=RunSettings())
 
 
+@pytest.fixture(scope="module")
+def limit_run(sample_run):
+    """core's run of the sample with a 7.5 bbl/d economic limit."""
+    load, _ = sample_run
+    return run_field(load, settings=RunSettings(econ_limit_bopd=7.5))
+
+
 def _app() -> AppTest:
     at = AppTest.from_file(APP, default_timeout=120).run()
     assert not at.exception, [e.value for e in at.exception]
@@ -124,8 +131,7 @@ def test_overview_filter_narrows_the_table(sample_run):
     assert len(shown) == int((run.wells["unit"].astype(str) == unit).sum())
 
 
-def test_settings_change_reruns_with_the_new_limit(sample_run):
-    load, _ = sample_run
+def test_settings_change_reruns_with_the_new_limit(limit_run):
     at = _app()
     at.switch_page("pages/settings.py").run()
     at.number_input(key="set_econ_limit").set_value(7.5)
@@ -133,9 +139,28 @@ def test_settings_change_reruns_with_the_new_limit(sample_run):
     _ok(at)
     at.switch_page("pages/overview.py").run()
     _ok(at)
-    expected = run_field(load, settings=RunSettings(econ_limit_bopd=7.5))
+    expected = limit_run
     assert _metric(at, "EUR oil") == _bbl(expected.wells["eur_oil_bbl"].sum())
     assert set(expected.wells["econ_limit_bopd"].dropna()) <= {7.5}
+
+
+def test_kept_run_and_the_change_report_equal_core(sample_run, limit_run):
+    from core.changes import compare_runs, summarise_changes
+
+    _, run0 = sample_run
+    at = _app()
+    at.switch_page("pages/overview.py").run()
+    at.button(key="save_run").click().run()
+    _ok(at)
+    assert any("Kept in the store as run" in s.value for s in at.success)
+    at.switch_page("pages/settings.py").run()
+    at.number_input(key="set_econ_limit").set_value(7.5)
+    at.button(key=APPLY_SETTINGS).click().run()
+    at.switch_page("pages/overview.py").run()
+    _ok(at)
+    s = summarise_changes(compare_runs(run0.wells, limit_run.wells))
+    assert _metric(at, "EUR change") == f"{s['eur_change_bbl']:+,.0f} bbl"
+    assert _metric(at, "Stage changes") == f"{s['n_stage_changed']:,}"
 
 
 def test_settings_economic_limit_from_prices_equals_core(sample_run):

@@ -57,3 +57,37 @@ rows = picked.selection.rows if picked is not None else []
 if rows:
     state.select_well(table.iloc[rows[0]]["well_id"])
     st.switch_page("pages/well.py")
+
+st.subheader("Keep this run and compare with the last one")
+c1, c2 = st.columns([3, 1])
+saved = state.saved_run_id()
+with c1:
+    who = st.text_input("Your name (recorded with the run)", key="save_author")
+with c2:
+    if saved is not None:
+        st.success(f"Kept in the store as run {saved}.")
+    elif st.button("Keep this run in the store", key="save_run"):
+        try:
+            saved = state.save_run_to_store(run, author=who)
+        except (ValueError, OSError) as exc:
+            st.error(f"The run was not kept: {exc}")
+        else:
+            st.success(f"Kept in the store as run {saved}.")
+diff = state.changes_since_saved(run)
+if diff is None:
+    st.caption("No earlier run of this field in the store: keep this one to compare next month's against it.")
+else:
+    p, s = diff["previous"], diff["summary"]
+    st.markdown(f"**Changes since run {p['id']}** (as of {p['as_of']}, kept {p['created']})")
+    m = st.columns(5)
+    m[0].metric("EUR change", f"{s['eur_change_bbl']:+,.0f} bbl")
+    m[1].metric("Remaining change", f"{s['remaining_change_bbl']:+,.0f} bbl")
+    m[2].metric("Stage changes", f"{s['n_stage_changed']:,}")
+    m[3].metric("Newly past the GOR peak", f"{s['n_newly_past_gor_peak']:,}")
+    m[4].metric("New planning statuses", f"{s['n_planning_status_changed']:,}")
+    if diff["wells"].empty:
+        st.caption("No well changed beyond the tolerances.")
+    else:
+        st.dataframe(diff["wells"], hide_index=True, key="changes_wells")
+    if not diff["units"].empty:
+        st.dataframe(diff["units"], hide_index=True, key="changes_units")
