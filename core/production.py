@@ -1025,12 +1025,16 @@ _QUANTITY_OF = {"oil_bbl": "liquid", "water_bbl": "liquid", "gas_mcf": "gas", "d
 _METRIC_DEFAULT = {"liquid": "m3", "gas": "e3m3", "pressure": "kpa", "temperature": "degc", "time": "days"}
 
 
-def _conversion(field_: str, header: str, units: str, name: str, messages: list) -> tuple[float, float]:
+def _conversion(field_: str, header: str, units: str, name: str, messages: list,
+                unit_row: Mapping[str, str] | None = None) -> tuple[float, float]:
     """(scale, offset) turning the column's values into the field unit of ``field_``."""
     q = _QUANTITY_OF.get(field_)
     if q is None:
         return 1.0, 0.0
     _, key, unit_txt = _split_header(header)
+    if key is None and unit_row and field_ in unit_row:
+        key = unit_row[field_]
+        unit_txt = key
     if key is None and q == "time" and re.search(r"\b(hours|hrs|hr)\b", str(header).lower()):
         key = "hours"
     if key is None:
@@ -1056,6 +1060,26 @@ def _conversion(field_: str, header: str, units: str, name: str, messages: list)
         messages.append(f"{name}: column {header!r} converted from {label} to {target} (x {scale:.7g}"
                         + (f" + {offset:.7g}" if offset else "") + ")")
     return scale, offset
+
+
+def _units_row(f: pd.DataFrame, mp: Mapping[str, str]) -> dict[str, str]:
+    """Unit keys of a units row right under the header ("", "", "bbl", "Mcf", ...), else {}."""
+    if len(f) == 0:
+        return {}
+    first = f.iloc[0]
+    out: dict[str, str] = {}
+    for k in ("oil_bbl", "gas_mcf", "water_bbl", "days_on", "pressure_psia", *HEADER_FIELDS):
+        if k not in mp:
+            continue
+        v = first[mp[k]]
+        if isinstance(v, str) and v.strip():
+            key = _unit_key(v.strip().strip("()[]{}"))
+            if key not in U.UNIT_TOKENS:
+                return {}
+            out[k] = key
+        elif v is not None and not (isinstance(v, float) and np.isnan(v)):
+            return {}
+    return out if "oil_bbl" in out else {}
 
 
 def _as_of_month(as_of: Any) -> int:
@@ -1315,8 +1339,16 @@ def load_production(
     rep = _Report(name)
     if t.extra_report is not None and len(t.extra_report):
         rep.parts.append(t.extra_report)
-    n = len(f)
     rows = t.row_numbers
+    unit_row = _units_row(f, mp)
+    if unit_row:
+        messages.append(f"{name}: row {int(rows[0])} holds the units of the columns above it ("
+                        + ", ".join(f"{mp[k]!r}: {v}" for k, v in unit_row.items()) + "); not a data row")
+        f = f.iloc[1:].reset_index(drop=True)
+        rows = rows[1:]
+        if len(f) == 0:
+            raise InputError(f"{name}: header and units rows only, no data rows")
+    n = len(f)
     reject = np.zeros(n, dtype=bool)
 
     # well id
@@ -1382,7 +1414,7 @@ def load_production(
             continue
         col = f[mp[k]]
         v, st = _parse_numbers(col, t.decimal_comma)
-        scale, off = _conversion(k, mp[k], units, name, messages)
+        scale, off = _conversion(k, mp[k], units, name, messages, unit_row)
         v = v * scale + off
         textish = (st == _TEXT) & ~reject
         if textish.any():
@@ -1428,7 +1460,7 @@ def load_production(
     if "pressure_psia" in mp:
         col = f[mp["pressure_psia"]]
         v, st = _parse_numbers(col, t.decimal_comma)
-        scale, off = _conversion("pressure_psia", mp["pressure_psia"], units, name, messages)
+        scale, off = _conversion("pressure_psia", mp["pressure_psia"], units, name, messages, unit_row)
         v = v * scale + off
         txt = (st >= _TEXT) & ~reject
         if txt.any():
@@ -1490,7 +1522,7 @@ def load_production(
     extra_cols = [k for k in HEADER_FIELDS if k in mp]
     for k in extra_cols:
         v, st = _parse_numbers(f[mp[k]], t.decimal_comma)
-        sc, off = _conversion(k, mp[k], units, name, messages)
+        sc, off = _conversion(k, mp[k], units, name, messages, unit_row)
         prod[k] = (v * sc + off)[kidx]
 
     # duplicates

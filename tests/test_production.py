@@ -398,3 +398,16 @@ def test_xlsx_formula_in_well_id_not_taken_as_a_name():
     _accounting(res)
     assert list(res.production["well_id"]) == ["A"]
     assert "formula" in res.report.set_index("row").loc[3, "reason"]
+
+
+def test_units_row_under_the_header():
+    csv = b"Well,Month,Oil,Gas,Pressure\n,,m3,e3m3,kPa\nA,2021-01,100,10,1000\nA,2021-02,90,9,\n"
+    res = load_production(csv, file_name="ur.csv", as_of=AS_OF)
+    _accounting(res)
+    assert res.rows_read == 2 and list(res.production["source_row"]) == [3, 4]
+    r = res.production.iloc[0]
+    # NIST SP 811 (2008) App. B.8 factors, closed form
+    assert r["oil_bbl"] == pytest.approx(100 / 0.158987294928, rel=1e-12)
+    assert r["gas_mcf"] == pytest.approx(10_000 / 28.316846592, rel=1e-12)
+    assert r["pressure_psia"] == pytest.approx(1000 / 6.894757293168361, rel=1e-12)
+    assert any("holds the units" in m for m in res.messages)
