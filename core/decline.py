@@ -505,7 +505,8 @@ def _lm_batch(t, y, w0, theta0, free, *, b_max, loss, scale, max_iter, tol):
         cand = np.clip(th + delta, lo, hi)
         cand[:, 0] = np.clip(cand[:, 0], th[:, 0] - _LN_QI_SPAN, th[:, 0] + _LN_QI_SPAN)
         c_new, A_new, g_new = evaluate(cand, tt, yy, ww)
-        ok = np.isfinite(c_new) & (c_new <= cost)
+        was = converged[idx]  # converged earlier but not yet dropped: held still
+        ok = np.isfinite(c_new) & (c_new <= cost) & ~was
         step = np.max(np.abs(cand - th), axis=1)
         step_small = step <= 1e-10 * (1.0 + np.max(np.abs(th), axis=1))
         rel = (cost - c_new) <= tol * (cost + 1e-300)
@@ -517,10 +518,13 @@ def _lm_batch(t, y, w0, theta0, free, *, b_max, loss, scale, max_iter, tol):
         lam = np.where(ok, np.maximum(lam * 0.2, 1e-12), lam * 8.0)
         theta[idx] = th
         cost_all[idx] = cost
-        n_iter[idx] = it + 1
-        converged[idx[done]] = True
-        keep = ~done
-        if not keep.all():
+        n_iter[idx[~was]] = it + 1
+        converged[idx[done & ~was]] = True
+        keep = ~converged[idx]
+        if not keep.any():
+            break
+        # drop converged wells from the batch (copying the rest costs, so not for a few)
+        if (~keep).sum() >= max(1, keep.size // 8):
             idx = idx[keep]
             th, cost, A, g, lam = th[keep], cost[keep], A[keep], g[keep], lam[keep]
             tt, yy, ww = tt[keep], yy[keep], ww[keep]
@@ -1328,7 +1332,7 @@ def _fit_stream(stream, wells, wcode, mi_all, rate, days_on, uptime, dim, rs_sta
     cs = st.chunk_wells
     workers = _resolve_workers(st.workers, fw.size, cs)
     if workers > 1 and fw.size > 0:
-        cs = min(cs, max(256, -(-fw.size // (2 * workers))))
+        cs = min(cs, max(256, -(-fw.size // (6 * workers))))
     chunk_of = np.full(n_wells, -1)
     row_of = np.full(n_wells, -1)
     chunk_of[order] = np.arange(order.size) // cs
