@@ -453,6 +453,7 @@ def _analyse(months: pd.DataFrame, surveys: pd.DataFrame, cumtab: pd.DataFrame, 
         res[c] = np.nan
     res["passed"] = False
     res["mb_ok"] = False
+    res["mb_straddle"] = False
     res["odd_note"] = ""
     for c in ("rsi_src", "pb_src", "bp_src", "peak_note", "mb_note"):
         res[c] = ""
@@ -624,6 +625,7 @@ def _analyse(months: pd.DataFrame, surveys: pd.DataFrame, cumtab: pd.DataFrame, 
 
     # material-balance shape fit where the PVT header is complete
     mb_ok = np.zeros(ns, bool)
+    straddle = np.zeros(ns, bool)
     mb_stage = np.full(ns, np.nan)
     mb = None
     hdr = np.column_stack([a["api"].to_numpy(float), a["gamma_g"].to_numpy(float), a["t_f"].to_numpy(float),
@@ -666,6 +668,8 @@ def _analyse(months: pd.DataFrame, surveys: pd.DataFrame, cumtab: pd.DataFrame, 
         mb_ok = mb["ok"] & hdr_ok
         rn = mb["rnow"]
         lo_r = mb["lo"]
+        bounds = np.column_stack([mb["r_b"], mb["r_s2"], mb["r_pk"]])
+        straddle = ((bounds > lo_r[:, None]) & (bounds < mb["hi"][:, None])).any(axis=1)
         # a stage is declared only when the whole 2-sigma interval of the recovery factor is
         # past its start (the GOR data exclude the earlier stage); the best fit gives the dates
         mb_stage = np.select([lo_r < mb["r_b"], lo_r < mb["r_s2"], mb["lo_pk"] < mb["r_pk"]], [1, 2, 3],
@@ -757,6 +761,7 @@ def _analyse(months: pd.DataFrame, surveys: pd.DataFrame, cumtab: pd.DataFrame, 
     res.loc[sids, "last_gor"] = np.exp(S[rows, n_i - 1])
     res.loc[sids, "peak_cand_mi"] = np.where(has_rise, mi_at(jp), np.nan)
     res.loc[sids, "mb_ok"] = mb_ok
+    res.loc[sids, "mb_straddle"] = straddle if mb is not None else False
     res.loc[sids, "odd_note"] = odd_note
     res.loc[sids, "mb_note"] = ("" if mb is None else
                                 np.where(mb_ok, "stage and dates from a material-balance GOR match ("
@@ -962,12 +967,14 @@ def _x_to_month(x: pd.Series, cumtab: pd.DataFrame) -> np.ndarray:
 
 
 def _confidence(res: pd.DataFrame, as_of: int) -> np.ndarray:
-    """high / medium / low from noise, history length, surveys and time since the last event.
+    """high / medium / low from noise, data, the method that placed the stage and its margin.
 
-    Score (common practice, our own weighting): noise sigma(ln GOR) < 0.07 -> +2, < 0.12 -> +1;
+    Score (our own weighting, common practice): noise sigma(ln GOR) < 0.07 -> +2, < 0.12 -> +1;
     >= 24 producing months with GOR -> +1; pressure surveys present -> +1; the latest stage
     event >= 6 months before the as-of month (or stage 1 with >= 12 months) -> +1; Rsi from a
-    long plateau or PVT -> +1. high >= 5, medium 3-4, low <= 2.
+    long plateau or PVT -> +1; stage from an accepted material-balance match -> +1; stage 3
+    from the GOR-only rules (a flat peak may already be behind) -> -1; the match's 2-sigma
+    interval spans a stage boundary -> -2. high >= 6, medium 4-5, low <= 3.
     """
     sig = res["sigma"].to_numpy(float)
     score = np.where(sig < 0.07, 2, np.where(sig < 0.12, 1, 0))
@@ -978,7 +985,9 @@ def _confidence(res: pd.DataFrame, as_of: int) -> np.ndarray:
     settled = np.where(st == 1, res["n_gor"].to_numpy(float) >= 12, (as_of - ev) >= 6)
     score = score + np.nan_to_num(settled).astype(int)
     score = score + ~res["rsi_src"].astype(str).str.startswith("median of the first").to_numpy()
-    return np.where(score >= 5, "high", np.where(score >= 3, "medium", "low"))
+    mb_ok = res["mb_ok"].fillna(False).to_numpy(bool)
+    score = score + mb_ok - ((st == 3) & ~mb_ok) - 2 * (mb_ok & res["mb_straddle"].fillna(False).to_numpy(bool))
+    return np.where(score >= 6, "high", np.where(score >= 4, "medium", "low"))
 
 
 def _event_mi(res: pd.DataFrame) -> pd.Series:
