@@ -28,9 +28,17 @@ rows out of month order                     info       sorted; one line per well
 missing months inside a well's life         info       not filled; one line per well (gaps)
 well with one month / all volumes zero      info       kept; one line per well (not forecastable)
 truncated last line (fewer fields)          rejected   row dropped
+row with extra non-empty fields             rejected   row dropped (file read row by row)
+volume above 1e9 per month                  rejected   row dropped (implausible)
+XLSX formula without a saved value          rejected   row dropped (formulas are never evaluated)
+pressure above the well's initial pressure  info       kept as given
+gas zero in every month with oil            info       kept (gas may not be metered)
 fluid column not constant within a well     info       first value (in month order) used
 fluid value outside its plausible range     altered    set to NaN
 ==========================================  =========  ==========================================
+
+A row of unit names right under the header ("", "", "bbl", "Mcf", ...) declares the column
+units and is not a data row. Entirely blank lines are not rows.
 
 A file that cannot be read at all raises :class:`core.validation.InputError` with one message
 naming the file and the problem.
@@ -1114,7 +1122,7 @@ def _resolve_mapping_lenient(columns, mapping, unit_column):
         return detect_columns(columns)
 
 
-def _per_well_constant(df: pd.DataFrame, col: str, rep: _Report, column_label: str, msg_kind: str = "info") -> pd.Series:
+def _per_well_constant(df: pd.DataFrame, col: str, rep: _Report, column_label: str) -> pd.Series:
     """First non-null value per well (in month order); report wells where it is not constant."""
     sub = df[["well_id", col]].dropna()
     if sub.empty:

@@ -9,7 +9,6 @@ numbers are counted by hand from the corpus files (header = row 1).
 from __future__ import annotations
 
 import io
-import zipfile
 from pathlib import Path
 
 import numpy as np

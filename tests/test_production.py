@@ -9,7 +9,6 @@ from __future__ import annotations
 
 import datetime as dt
 import io
-import string
 from pathlib import Path
 
 import numpy as np
