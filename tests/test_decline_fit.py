@@ -275,3 +275,38 @@ def test_batched_equals_single_well_and_processes_equal_in_process():
         single = fit_arps(ts[wid][k:] - (pd.Timestamp(start) - pd.Timestamp("2016-01-01")).days / 365.25, q[k:])
         assert single.model == a.loc[wid, "model"]
         assert_allclose([single.qi, single.di], a.loc[wid, ["qi", "di"]].to_numpy(float), rtol=1e-6)
+
+
+def test_field_reports_down_weighted_spike_month():
+    # Robust loss (soft-L1 as scipy.optimize.least_squares defines it): a 4x spike in
+    # 2018-03 is named in months_down_weighted and the fit stays on the trend
+    n = 60
+    t = month_t(n)
+    q = arps_rate(t, 400.0, 0.6, 0.5)
+    q[26] *= 4.0
+    ff = fit_field(make_table({"SP-1": q}), settings=DeclineSettings(workers=1, streams=("oil",),
+                                                                      detect_step_changes=False))
+    row = ff.fits.iloc[0]
+    assert row.months_down_weighted == "2018-03" and row.n_months_down_weighted == 1
+    # soft-L1 is not redescending: the spike keeps a small pull on b (0.47 here)
+    assert_allclose(row.b, 0.5, atol=0.05)
+    plain = fit_field(make_table({"SP-1": q}), settings=DeclineSettings(
+        workers=1, streams=("oil",), detect_step_changes=False, loss="linear")).fits.iloc[0]
+    assert abs(plain.b - 0.5) > abs(row.b - 0.5)
+
+
+def test_single_and_multiple_hyperbolic_starts_agree(monkeypatch):
+    # STYLE.md: fits started from more than one initial guess reach the same optimum
+    import core.decline as dec
+
+    rng = np.random.default_rng(5)
+    wells = {f"M-{i}": arps_rate(month_t(90), rng.uniform(50, 900), rng.uniform(0.1, 2.5), rng.uniform(0, 2))
+             * np.exp(rng.normal(0, 0.1, 90)) for i in range(20)}
+    table = make_table(wells)
+    st = DeclineSettings(workers=1, streams=("oil",))
+    one = fit_field(table, settings=st).candidates
+    monkeypatch.setattr(dec, "HYPERBOLIC_STARTS", ("exp", "harm", "high"))
+    three = fit_field(table, settings=st).candidates
+    h1 = one[one.family == "hyperbolic"].robust_cost.to_numpy()
+    h3 = three[three.family == "hyperbolic"].robust_cost.to_numpy()
+    assert np.all(h1 <= h3 * (1 + 1e-6))
