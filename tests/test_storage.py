@@ -22,7 +22,7 @@ import pandas as pd
 import pytest
 import sqlalchemy as sa
 
-import conftest_pg
+from tests import conftest_pg
 from core import __version__
 from core import storage
 from core.storage import (
@@ -55,6 +55,15 @@ def pg_server():
 
 
 _db_counter = itertools.count()
+
+
+def _mp_context():
+    """Processes for the concurrency tests: forked from a clean single-threaded server
+    (never from the test process, which may hold other threads' locks), with the heavy
+    modules loaded once."""
+    ctx = mp.get_context("forkserver")
+    ctx.set_forkserver_preload(["pandas", "pyarrow.parquet", "sqlalchemy", "core.storage", __name__])
+    return ctx
 
 
 def _fresh_pg_db(server_url: str) -> str:
@@ -457,7 +466,7 @@ def test_killed_process_mid_save_leaves_previous_run_intact(tmp_path):
     with open_store(path) as s:
         load = make_load()
         rid = s.save_run(make_run(load), field="F", load=load)
-    p = mp.get_context("fork").Process(target=_save_then_die, args=(path,))
+    p = _mp_context().Process(target=_save_then_die, args=(path,))
     p.start()
     p.join(60)
     assert p.exitcode == 3
@@ -515,7 +524,7 @@ def _writer(url: str, who: str, n: int, timeout_s: float, start, out) -> None:
 def test_two_processes_writing_at_once(store_url, timeout_s):
     if "://" in store_url and timeout_s == 0.0:
         pytest.skip("lock_timeout=0 means 'wait forever' in PostgreSQL")
-    ctx = mp.get_context("fork")
+    ctx = _mp_context()
     start, out = ctx.Event(), ctx.Queue()
     procs = [ctx.Process(target=_writer, args=(store_url, w, 8, timeout_s, start, out)) for w in ("ana", "ben")]
     for p in procs:
