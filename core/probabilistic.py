@@ -739,6 +739,7 @@ def hindcast_scores(table: pd.DataFrame) -> dict[str, float]:
 #: measure it: the spread of the 24-month hindcast misses measured on the invented sample
 #: field (``scripts/hindcast_calibration.py``; our own measurement, not a published value).
 DEFAULT_LEVEL_SD = 0.09
+KAPPA_MIN = 0.5  # the level error keeps at least half of the misses' spread (our choice)
 _POOL_SIZE_DEFAULT = 99
 
 
@@ -837,8 +838,11 @@ def calibrate_level_error(
     ``hide_months`` before its end is fitted (:func:`core.decline.fit_field`) and bootstrapped
     without a level error; each scored well's miss ln(actual/P50) of the hidden volume is
     collected; the pool is the misses centred on their median (the median bias is reported,
-    not imposed). Drawing from the pool is a bootstrap of the field's own forecast errors:
-    no distribution is assumed.
+    not imposed) and scaled by kappa = sqrt(1 - var_boot / var_miss) (at least
+    :data:`KAPPA_MIN`): the misses already contain the bootstrap's scatter (var_boot, the
+    median over wells of its log variance, from (ln(P10/P90)/2.563)^2), and independent
+    errors add in variance. Variances are robust (1.4826 MAD). Drawing from the pool is a
+    bootstrap of the field's own forecast errors: no distribution is assumed.
     """
     from core.decline import fit_field
 
@@ -860,6 +864,7 @@ def calibrate_level_error(
     keep_set = set(keep)
     hist = hist[hist["well_id"].isin(keep_set)]
     lr = np.zeros(0)
+    boot_sd = np.zeros(0)
     cov_raw = float("nan")
     if len(keep) >= min_wells:
         ff = fit_field(hist, settings=cal_st, regime_start=regime_start, overrides=overrides)
@@ -873,6 +878,9 @@ def calibrate_level_error(
         p90, p50, p10 = (w[c + k].to_numpy(float) for k in ("p90", "p50", "p10"))
         ok = w["prob_method"].str.startswith("moving-block").to_numpy() & (act > 0) & (p50 > 0)
         lr = np.log(act[ok] / p50[ok])
+        # the bootstrap's own log standard deviation per well (normal: P10/P90 = +-1.2816 sd)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            boot_sd = np.log(np.maximum(p10[ok], 1e-300) / np.maximum(p90[ok], 1e-300)) / (2.0 * 1.2816)
         if ok.any():
             cov_raw = 100.0 * float(np.mean((act[ok] >= p90[ok]) & (act[ok] <= p10[ok])))
     n = int(lr.size)
@@ -882,8 +890,15 @@ def calibrate_level_error(
                             f"scored in the hindcast, at least {min_wells} needed", n, cov_raw, as_of,
                             int(hide_months))
     med = float(np.median(lr))
-    pool = np.sort(lr - med)
-    sd = float(1.4826 * np.median(np.abs(pool)))
-    return LevelCalibration(pool, sd, n, cov_raw, 100.0 * float(np.expm1(med)), as_of, int(hide_months),
+    miss = lr - med
+    sd_miss = float(1.4826 * np.median(np.abs(miss)))
+    # the misses hold the bootstrap's scatter too; the level error is what is left:
+    # independent errors add in variance, so shrink by kappa = sqrt(1 - var_boot/var_miss)
+    var_boot = float(np.median(np.where(np.isfinite(boot_sd), boot_sd, 0.0) ** 2))
+    kappa = float(np.sqrt(np.clip(1.0 - var_boot / max(sd_miss**2, 1e-300), KAPPA_MIN**2, 1.0)))
+    pool = np.sort(miss * kappa)
+    return LevelCalibration(pool, sd_miss * kappa, n, cov_raw, 100.0 * float(np.expm1(med)), as_of,
+                            int(hide_months),
                             f"hindcast level error: last {int(hide_months)} months of the history "
-                            f"hidden, misses of {n} wells (centred on their median)")
+                            f"hidden, misses of {n} wells centred on their median, scaled by "
+                            f"{kappa:.3f} for the bootstrap's own share of the variance")
