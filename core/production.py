@@ -1264,6 +1264,7 @@ def load_production(
     max_bytes: int = DEFAULT_MAX_BYTES,
     as_of: Any = None,
     dayfirst: bool | None = None,
+    well_header_name: str | None = None,
 ) -> LoadResult:
     """Load a monthly production file into the tidy monthly table, well header and load report.
 
@@ -1296,6 +1297,8 @@ def load_production(
         month (UTC).
     dayfirst : bool, optional
         Day/month order of dates like 03/04/2021 when the data cannot resolve it.
+    well_header_name : str, optional
+        Name of the well-header file in messages (when ``well_header`` is bytes).
 
     Returns
     -------
@@ -1380,7 +1383,7 @@ def load_production(
     if fbad.any():
         idx = np.flatnonzero(fbad)
         rep.add(rows[idx], "", mp["well_id"], _raw_values(wcol, idx), "rejected",
-                "well id is a formula with no saved value (formulas are never evaluated)")
+                "well id starts with '=' (a spreadsheet formula, never evaluated), not a name")
         reject |= fbad
 
     # month
@@ -1644,7 +1647,8 @@ def load_production(
             wells[k] = np.nan
     wells = _check_header_bounds(wells, rep)
     if well_header is not None:
-        wh = load_well_header(well_header, units=units, max_bytes=max_bytes) if not isinstance(well_header, WellHeaderLoad) else well_header
+        wh = well_header if isinstance(well_header, WellHeaderLoad) else load_well_header(
+            well_header, file_name=well_header_name, units=units, max_bytes=max_bytes)
         messages.extend(wh.messages)
         if len(wh.report):
             rep.parts.append(wh.report)

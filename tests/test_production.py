@@ -399,6 +399,13 @@ def test_xlsx_formula_in_well_id_not_taken_as_a_name():
     assert "formula" in res.report.set_index("row").loc[3, "reason"]
 
 
+def test_well_header_bytes_named_in_messages():
+    raw = (DATA / "clean_comma.csv").read_bytes()
+    hdr = (DATA / "well_header.csv").read_bytes()
+    r2 = load_production(raw, file_name="p.csv", well_header=hdr, well_header_name="hdr.csv", as_of=AS_OF)
+    assert any(m.startswith("hdr.csv:") for m in r2.messages)
+
+
 def test_units_row_under_the_header():
     csv = b"Well,Month,Oil,Gas,Pressure\n,,m3,e3m3,kPa\nA,2021-01,100,10,1000\nA,2021-02,90,9,\n"
     res = load_production(csv, file_name="ur.csv", as_of=AS_OF)
