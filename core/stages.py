@@ -702,6 +702,12 @@ def _analyse(months: pd.DataFrame, surveys: pd.DataFrame, cumtab: pd.DataFrame, 
     forward = np.isfinite(c_mi) & ~has_fb
     # order: initial pressure < Pb  >  bracketed surveys  >  GOR  >  forward extrapolation
     take = ~below_init & (bracket | (forward & ~np.isfinite(bp_mi)))
+    # an accepted material-balance date inside the survey bracket is kept (the surveys bound
+    # the crossing; the match places it within the bracket)
+    mb_in = (take & bracket & mb_ok & (mb_stage >= 2) & np.isfinite(bp_mi) & np.isfinite(la)
+             & (bp_mi >= la) & (bp_mi <= fb))
+    take = take & ~mb_in
+    bp_src = np.where(mb_in, bp_src + "; inside the bracket of the pressure surveys", bp_src).astype(object)
     bp_mi = np.where(take, c_mi, bp_mi)
     bp_src = np.where(take, rule, bp_src).astype(object)
     # first survey already below Pb: crossing no later than that survey
