@@ -960,15 +960,29 @@ def _mb_fit(Z, FS, FE, V, W, sigma, groups: np.ndarray, group_keys: list) -> dic
 
 
 def _x_to_month(x: pd.Series, cumtab: pd.DataFrame) -> np.ndarray:
-    """First month whose end-of-month cumulative oil reaches ``x`` (per sid); NaN if never."""
-    xs = pd.DataFrame({"sid": x.index, "x": x.to_numpy(float), "k": np.arange(len(x))})
-    xs = xs[np.isfinite(xs["x"])].sort_values("x")
-    out = np.full(len(x), np.nan)
-    if xs.empty:
+    """First month whose end-of-month cumulative oil reaches ``x`` (per sid); NaN if never.
+
+    ``cumtab`` is sorted by sid then month (as ``_prepare`` builds it); one global binary
+    search on the key (series rank x span + cumulative oil) serves every series at once.
+    """
+    xv = x.to_numpy(float)
+    out = np.full(len(xv), np.nan)
+    if not np.isfinite(xv).any() or cumtab.empty:
         return out
-    c = cumtab[cumtab["sid"].isin(xs["sid"])].sort_values("cum_end")
-    m = pd.merge_asof(xs, c, left_on="x", right_on="cum_end", by="sid", direction="forward")
-    out[m["k"].to_numpy()] = m["mi"].to_numpy(float)
+    sid_index = pd.Index(pd.unique(cumtab["sid"]))
+    c_code = sid_index.get_indexer(cumtab["sid"]).astype(float)
+    cum = cumtab["cum_end"].to_numpy(float)
+    span = 2.0 * max(float(np.nanmax(np.abs(cum))), float(np.nanmax(np.abs(xv[np.isfinite(xv)])))) + 1.0
+    key = c_code * span + cum
+    x_code = sid_index.get_indexer(x.index)
+    ok = np.isfinite(xv) & (x_code >= 0)
+    q = x_code[ok] * span + np.maximum(xv[ok], 0.0)
+    pos = np.searchsorted(key, q, side="left")
+    inside = pos < key.size
+    posc = np.minimum(pos, key.size - 1)
+    good = inside & (c_code[posc] == x_code[ok])
+    mi = cumtab["mi"].to_numpy(float)
+    out[np.flatnonzero(ok)] = np.where(good, mi[posc], np.nan)
     return out
 
 
