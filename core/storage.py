@@ -57,7 +57,7 @@ import re
 import sqlite3
 from contextlib import contextmanager
 from pathlib import Path
-from typing import Any, Iterator, Mapping
+from typing import Any, Iterable, Iterator, Mapping
 
 import numpy as np
 import pandas as pd
@@ -518,6 +518,18 @@ class StoredRun:
         return RunResult(**{k: v for k, v in have.items() if k in names})
 
 
+def _wanted_tables(tables: Iterable[str] | None) -> set[str]:
+    if tables is None:
+        return set(_RUN_FRAMES)
+    if isinstance(tables, str):
+        tables = (tables,)
+    wanted = set(tables)
+    unknown = wanted - set(_RUN_FRAMES)
+    if unknown:
+        raise InputError(f"tables must be among {_RUN_FRAMES}, got {sorted(unknown)}")
+    return wanted | {"wells"}
+
+
 def _ts(v: Any) -> pd.Timestamp | None:
     if v is None:
         return None
@@ -887,13 +899,16 @@ class Store:
                 self._put_frame(c, "run", run_id, name, getattr(result, name, None))
             return run_id
 
-    def load_run(self, run_id: int) -> StoredRun:
-        """A stored run with all its tables."""
+    def load_run(self, run_id: int, *, tables: Iterable[str] | None = None) -> StoredRun:
+        """A stored run with its tables (all, or ``wells`` plus the ones named in ``tables``,
+        e.g. ``("units",)``; the others are None). Loading only what is needed keeps a large
+        field's monthly table out of memory."""
+        wanted = _wanted_tables(tables)
         with self._tx(write=False) as c:
             r = c.execute(sa.select(T_RUNS).where(T_RUNS.c.id == int(run_id))).first()
             if r is None:
                 raise StoreError(f"no run with id {run_id} in {self.location}")
-            frames = {n: self._get_frame(c, "run", r.id, n) for n in _RUN_FRAMES}
+            frames = {n: (self._get_frame(c, "run", r.id, n) if n in wanted else None) for n in _RUN_FRAMES}
         settings = loads_value(r.settings_json)
         rec = loads_value(r.inputs_json)
         return StoredRun(
@@ -904,19 +919,23 @@ class Store:
             author=r.author, note=r.note, **frames,
         )
 
-    def latest_run(self, field: str) -> StoredRun | None:
-        """The newest run of ``field`` (None when the field has no run)."""
-        return self.previous_run(field, before=None)
+    def latest_run(self, field: str, *, tables: Iterable[str] | None = None) -> StoredRun | None:
+        """The newest run of ``field`` (None when the field has no run); ``tables`` as
+        :meth:`load_run`."""
+        return self.previous_run(field, before=None, tables=tables)
 
-    def previous_run(self, field: str, *, before: int | None) -> StoredRun | None:
-        """The newest run of ``field`` with an id below ``before`` (None = the newest of all)."""
+    def previous_run(
+        self, field: str, *, before: int | None, tables: Iterable[str] | None = None
+    ) -> StoredRun | None:
+        """The newest run of ``field`` with an id below ``before`` (None = the newest of all);
+        ``tables`` as :meth:`load_run`."""
         key = field_key(field)
         q = sa.select(T_RUNS.c.id).where(T_RUNS.c.field_key == key)
         if before is not None:
             q = q.where(T_RUNS.c.id < int(before))
         with self._tx(write=False) as c:
             r = c.execute(q.order_by(T_RUNS.c.id.desc()).limit(1)).first()
-        return None if r is None else self.load_run(r.id)
+        return None if r is None else self.load_run(r.id, tables=tables)
 
     def list_runs(self, field: str | None = None) -> pd.DataFrame:
         """Runs without their tables, newest first: id, field_key, dataset_id, created_at,
@@ -955,10 +974,11 @@ class Store:
         ``field``) against the run before it; None when there is no earlier run."""
         from core.changes import compare_runs
 
-        new = self.latest_run(field) if run_id is None else self.load_run(run_id)
+        only = ("wells",)
+        new = self.latest_run(field, tables=only) if run_id is None else self.load_run(run_id, tables=only)
         if new is None:
             return None
-        prev = self.previous_run(field, before=new.id)
+        prev = self.previous_run(field, before=new.id, tables=only)
         return None if prev is None else compare_runs(prev.wells, new.wells, **tolerances)
 
     # ---- overrides (append-only)
@@ -1244,7 +1264,10 @@ def _open(path_or_url, *, create: bool, timeout_s: float, target: int) -> Store:
         if not path.exists():
             if not create:
                 raise StoreError(f"no store at {path} (open with create=True to make one)")
-            path.parent.mkdir(parents=True, exist_ok=True)
+            try:
+                path.parent.mkdir(parents=True, exist_ok=True)
+            except OSError as e:
+                raise StoreError(f"cannot create the data folder {path.parent}: {e.strerror or e}") from e
         elif path.is_dir():
             raise StoreError(f"{path} is a folder, not a store file")
         engine = _sqlite_engine(path, timeout_s)

@@ -235,6 +235,10 @@ def test_open_makes_data_folder_and_sets_wal_busy_timeout_foreign_keys(tmp_path)
     s.close()
     with pytest.raises(StoreError, match="no store"):
         open_store(tmp_path / "missing.sqlite", create=False)
+    blocker = tmp_path / "a file"
+    blocker.write_text("x")
+    with pytest.raises(StoreError, match="cannot create the data folder"):
+        open_store(blocker / "sub" / "team.sqlite")
 
 
 def test_not_a_store_is_refused(tmp_path):
@@ -307,6 +311,12 @@ def test_run_round_trip(store):
     fields = store.list_fields()
     assert fields["n_runs"].tolist() == [2]
     assert store.latest_run("Other Field") is None
+    light = store.load_run(rid, tables=("units",))
+    assert light.monthly is None and light.load_report is None
+    pd.testing.assert_frame_equal(light.units, run.units)
+    pd.testing.assert_frame_equal(light.wells, run.wells)
+    with pytest.raises(ValueError, match="tables must be among"):
+        store.load_run(rid, tables=("nonsense",))
 
 
 def test_large_table_is_stored_in_parts(store, monkeypatch):
