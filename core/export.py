@@ -21,6 +21,7 @@ from __future__ import annotations
 
 import io
 import math
+import re
 from collections.abc import Iterable, Mapping
 from pathlib import Path
 from typing import Any
@@ -157,21 +158,44 @@ def prepare_table(table: pd.DataFrame) -> pd.DataFrame:
 _CSV_CHUNK_ROWS = 500_000
 
 
-def write_csv(table: pd.DataFrame, target: str | Path | io.TextIOBase) -> None:
+def _csv_chunk_bytes(part: pd.DataFrame, header: bool) -> bytes:
+    """UTF-8 CSV bytes of an already prepared table (Arrow's C++ writer when available)."""
+    try:
+        import pyarrow as pa
+        import pyarrow.csv as pacsv
+    except ImportError:  # pragma: no cover - pyarrow ships with pandas/streamlit here
+        return part.to_csv(index=False, header=header, na_rep="", lineterminator="\n").encode("utf-8")
+    buf = io.BytesIO()
+    table = pa.Table.from_pandas(part, preserve_index=False)
+    pacsv.write_csv(table, buf, pacsv.WriteOptions(include_header=header, quoting_style="needed"))
+    return buf.getvalue()
+
+
+def csv_chunks(table: pd.DataFrame):
+    """Yield the CSV bytes of ``table`` under the export rules, a block of rows at a time.
+
+    Numbers are written in their shortest round-trip form by Arrow's writer (15-17
+    significant digits); text cells are quoted.
+    """
+    n = len(table)
+    if n == 0:
+        yield _csv_chunk_bytes(prepare_table(table), True)
+        return
+    for start in range(0, n, _CSV_CHUNK_ROWS):
+        yield _csv_chunk_bytes(prepare_table(table.iloc[start : start + _CSV_CHUNK_ROWS]), start == 0)
+
+
+def write_csv(table: pd.DataFrame, target: str | Path | io.IOBase) -> None:
     """Write ``table`` as UTF-8 CSV (comma, header, no index) under the export rules.
 
-    Large tables are prepared and written in chunks of rows so memory stays bounded.
+    ``target`` is a path or a binary file object. Large tables are prepared and written in
+    blocks of rows so memory stays bounded.
     """
     own = not hasattr(target, "write")
-    fh = open(target, "w", encoding="utf-8", newline="") if own else target
+    fh = open(target, "wb") if own else target
     try:
-        n = len(table)
-        if n == 0:
-            prepare_table(table).to_csv(fh, index=False, na_rep="", lineterminator="\n")
-            return
-        for start in range(0, n, _CSV_CHUNK_ROWS):
-            part = prepare_table(table.iloc[start : start + _CSV_CHUNK_ROWS])
-            part.to_csv(fh, index=False, header=start == 0, na_rep="", lineterminator="\n")
+        for chunk in csv_chunks(table):
+            fh.write(chunk)
     finally:
         if own:
             fh.close()
@@ -179,9 +203,7 @@ def write_csv(table: pd.DataFrame, target: str | Path | io.TextIOBase) -> None:
 
 def table_to_csv_bytes(table: pd.DataFrame) -> bytes:
     """CSV bytes (UTF-8) of one table under the export rules (for download buttons)."""
-    buf = io.StringIO()
-    write_csv(table, buf)
-    return buf.getvalue().encode("utf-8")
+    return b"".join(csv_chunks(table))
 
 
 def _result_tables(result: Any, wells: Iterable[str] | None = None) -> dict[str, pd.DataFrame]:
@@ -317,34 +339,214 @@ def _cover_value(v: Any) -> Any:
     return neutralise_text(str(v))
 
 
-def _write_sheet(wb: Any, name: str, table: pd.DataFrame) -> None:
-    ws = wb.add_worksheet(name)
-    prepared = prepare_table(table)
-    header = [neutralise_text(str(c)) for c in prepared.columns]
-    ws.write_row(0, 0, header)
-    cols = []
-    for c in prepared.columns:
-        s = prepared[c]
+# A workbook is a zip of SpreadsheetML parts (ECMA-376 Part 1). The sheets are written here
+# directly, cell XML built column-wise by Arrow's vectorised string kernels, because a
+# cell-by-cell writer needs minutes for the millions of cells of a large field. Text is
+# written as inline strings (t="inlineStr"), numbers as <v> values; no cell is ever a formula.
+_NS_MAIN = "http://schemas.openxmlformats.org/spreadsheetml/2006/main"
+_NS_REL = "http://schemas.openxmlformats.org/officeDocument/2006/relationships"
+_NS_PKG_REL = "http://schemas.openxmlformats.org/package/2006/relationships"
+_XML_HEAD = '<?xml version="1.0" encoding="UTF-8" standalone="yes"?>\n'
+_STYLES = (
+    _XML_HEAD + f'<styleSheet xmlns="{_NS_MAIN}">'
+    '<fonts count="2"><font><sz val="11"/><name val="Calibri"/></font>'
+    '<font><b/><sz val="11"/><name val="Calibri"/></font></fonts>'
+    '<fills count="2"><fill><patternFill patternType="none"/></fill>'
+    '<fill><patternFill patternType="gray125"/></fill></fills>'
+    '<borders count="1"><border><left/><right/><top/><bottom/><diagonal/></border></borders>'
+    '<cellStyleXfs count="1"><xf numFmtId="0" fontId="0" fillId="0" borderId="0"/></cellStyleXfs>'
+    '<cellXfs count="3"><xf numFmtId="0" fontId="0" fillId="0" borderId="0" xfId="0"/>'
+    '<xf numFmtId="0" fontId="0" fillId="0" borderId="0" xfId="0" applyAlignment="1">'
+    '<alignment wrapText="1" vertical="top"/></xf>'
+    '<xf numFmtId="0" fontId="1" fillId="0" borderId="0" xfId="0" applyFont="1"/></cellXfs>'
+    '<cellStyles count="1"><cellStyle name="Normal" xfId="0" builtinId="0"/></cellStyles>'
+    "</styleSheet>"
+)
+_STYLE_WRAP, _STYLE_BOLD = 1, 2
+#: Longest text a spreadsheet cell holds (Excel specification limit).
+XLSX_MAX_TEXT = 32_767
+_XLSX_BLOCK_ROWS = 100_000
+# characters XML 1.0 does not allow (Python re syntax; RE2 syntax for Arrow)
+_BAD_XML_RE = re.compile("[\x00-\x08\x0b\x0c\x0e-\x1f\ufffe\uffff]")
+_BAD_XML_RE2 = r"[\x00-\x08\x0b\x0c\x0e-\x1f\x{FFFE}\x{FFFF}]"
+
+
+def _col_letter(j: int) -> str:
+    s = ""
+    j += 1
+    while j:
+        j, r = divmod(j - 1, 26)
+        s = chr(65 + r) + s
+    return s
+
+
+def _xml_escape_text(value: str) -> str:
+    value = value[:XLSX_MAX_TEXT]
+    value = value.replace("&", "&amp;").replace("<", "&lt;").replace(">", "&gt;").replace("\r", "&#13;")
+    return _BAD_XML_RE.sub("\ufffd", value)
+
+
+def _arrow_text_xml(values: np.ndarray) -> Any:
+    """Arrow string array of XML-escaped text ("" -> null) from an object array of str."""
+    import pyarrow as pa
+    import pyarrow.compute as pc
+
+    arr = pa.array(values, type=pa.string())
+    arr = pc.if_else(pc.equal(arr, ""), pa.scalar(None, pa.string()), arr)
+    arr = pc.utf8_slice_codeunits(arr, 0, XLSX_MAX_TEXT)
+    for old, new in (("&", "&amp;"), ("<", "&lt;"), (">", "&gt;"), ("\r", "&#13;")):
+        arr = pc.replace_substring(arr, old, new)
+    return pc.replace_substring_regex(arr, _BAD_XML_RE2, "\ufffd")
+
+
+def _arrow_bytes(arr: Any) -> bytes:
+    """The concatenated UTF-8 bytes of a non-null Arrow string array."""
+    import pyarrow as pa
+
+    if pa.types.is_large_string(arr.type):
+        off_dtype = np.int64
+    else:
+        off_dtype = np.int32
+    bufs = arr.buffers()
+    offsets = np.frombuffer(bufs[1], dtype=off_dtype)[arr.offset : arr.offset + len(arr) + 1]
+    if len(offsets) == 0:
+        return b""
+    return bytes(memoryview(bufs[2])[int(offsets[0]) : int(offsets[-1])])
+
+
+def _rows_xml(prepared: pd.DataFrame, first_row: int) -> bytes:
+    """``<row>`` elements (1-based row numbers from ``first_row``) of a prepared table block."""
+    import pyarrow as pa
+    import pyarrow.compute as pc
+
+    n = len(prepared)
+    if n == 0:
+        return b""
+    rownum = pc.cast(pa.array(np.arange(first_row, first_row + n, dtype=np.int64)), pa.string())
+    cells = []
+    for j, name in enumerate(prepared.columns):
+        ref = _col_letter(j)
+        s = prepared[name]
         if s.dtype == object:
-            cols.append(s.to_numpy())
+            x = _arrow_text_xml(s.to_numpy())
+            cell = pc.binary_join_element_wise(
+                '<c r="', ref, rownum, '" t="inlineStr"><is><t xml:space="preserve">', x, "</t></is></c>", "",
+                null_handling="emit_null",
+            )
         else:
-            v = s.to_numpy(dtype=float, na_value=np.nan)
-            o = v.astype(object)
-            o[~np.isfinite(v)] = None
-            cols.append(o)
-    if not cols:
-        return
-    rows = zip(*cols)
-    write_string, write_number = ws.write_string, ws.write_number
-    for r, row in enumerate(rows, start=1):
-        for c, v in enumerate(row):
-            if v is None or v == "":
-                continue
-            if isinstance(v, str):
-                write_string(r, c, v)
-            else:
-                write_number(r, c, v)
-    ws.freeze_panes(1, 0)
+            v = pa.array(s.to_numpy(dtype=float, na_value=np.nan), from_pandas=True)  # NaN -> null
+            cell = pc.binary_join_element_wise(
+                '<c r="', ref, rownum, '"><v>', pc.cast(v, pa.string()), "</v></c>", "", null_handling="emit_null"
+            )
+        cells.append(pc.fill_null(cell, ""))
+    rows = pc.binary_join_element_wise('<row r="', rownum, '">', *cells, "</row>", "")
+    return _arrow_bytes(rows)
+
+
+def _header_xml(columns: list[str], *, style: int = _STYLE_BOLD) -> str:
+    cells = "".join(
+        f'<c r="{_col_letter(j)}1" s="{style}" t="inlineStr"><is><t xml:space="preserve">'
+        f"{_xml_escape_text(neutralise_text(str(c)))}</t></is></c>"
+        for j, c in enumerate(columns)
+    )
+    return f'<row r="1">{cells}</row>'
+
+
+def _sheet_open(*, freeze_header: bool, widths: dict[int, float] | None = None) -> str:
+    view = (
+        '<sheetViews><sheetView workbookViewId="0"><pane ySplit="1" topLeftCell="A2" '
+        'activePane="bottomLeft" state="frozen"/></sheetView></sheetViews>'
+        if freeze_header
+        else '<sheetViews><sheetView workbookViewId="0"/></sheetViews>'
+    )
+    cols = ""
+    if widths:
+        cols = "<cols>" + "".join(
+            f'<col min="{j + 1}" max="{j + 1}" width="{w:g}" customWidth="1"/>' for j, w in sorted(widths.items())
+        ) + "</cols>"
+    return _XML_HEAD + f'<worksheet xmlns="{_NS_MAIN}" xmlns:r="{_NS_REL}">{view}<sheetFormatPr defaultRowHeight="15"/>{cols}<sheetData>'
+
+
+_SHEET_CLOSE = "</sheetData></worksheet>"
+
+
+def _write_table_sheet(fh: Any, table: pd.DataFrame) -> None:
+    fh.write(_sheet_open(freeze_header=True).encode("utf-8"))
+    fh.write(_header_xml([str(c) for c in table.columns]).encode("utf-8"))
+    for start in range(0, len(table), _XLSX_BLOCK_ROWS):
+        part = prepare_table(table.iloc[start : start + _XLSX_BLOCK_ROWS])
+        fh.write(_rows_xml(part, start + 2))
+    fh.write(_SHEET_CLOSE.encode("utf-8"))
+
+
+def _write_cover_sheet(fh: Any, rows: list[tuple[str, Any]]) -> None:
+    out = [_sheet_open(freeze_header=False, widths={0: 34, 1: 100})]
+    for r, (k, v) in enumerate(rows, start=1):
+        key = _xml_escape_text(neutralise_text(str(k)))
+        cells = f'<c r="A{r}" s="{_STYLE_BOLD}" t="inlineStr"><is><t xml:space="preserve">{key}</t></is></c>'
+        v = _cover_value(v)
+        if isinstance(v, str):
+            if v:
+                cells += (f'<c r="B{r}" s="{_STYLE_WRAP}" t="inlineStr"><is><t xml:space="preserve">'
+                          f"{_xml_escape_text(v)}</t></is></c>")
+        else:
+            cells += f'<c r="B{r}" s="{_STYLE_WRAP}"><v>{float(v)!r}</v></c>'
+        out.append(f'<row r="{r}">{cells}</row>')
+    out.append(_SHEET_CLOSE)
+    fh.write("".join(out).encode("utf-8"))
+
+
+def _write_workbook(target: Any, cover_rows: list[tuple[str, Any]], sheets: list[tuple[str, pd.DataFrame]]) -> None:
+    """Write an .xlsx package: the cover sheet then one worksheet per table."""
+    import zipfile
+
+    names = ["cover"] + [n for n, _ in sheets]
+    n = len(names)
+    content_types = (
+        _XML_HEAD + '<Types xmlns="http://schemas.openxmlformats.org/package/2006/content-types">'
+        '<Default Extension="rels" ContentType="application/vnd.openxmlformats-package.relationships+xml"/>'
+        '<Default Extension="xml" ContentType="application/xml"/>'
+        '<Override PartName="/xl/workbook.xml" '
+        'ContentType="application/vnd.openxmlformats-officedocument.spreadsheetml.sheet.main+xml"/>'
+        '<Override PartName="/xl/styles.xml" '
+        'ContentType="application/vnd.openxmlformats-officedocument.spreadsheetml.styles+xml"/>'
+        + "".join(
+            f'<Override PartName="/xl/worksheets/sheet{i}.xml" '
+            'ContentType="application/vnd.openxmlformats-officedocument.spreadsheetml.worksheet+xml"/>'
+            for i in range(1, n + 1)
+        )
+        + "</Types>"
+    )
+    root_rels = (
+        _XML_HEAD + f'<Relationships xmlns="{_NS_PKG_REL}"><Relationship Id="rId1" '
+        f'Type="{_NS_REL}/officeDocument" Target="xl/workbook.xml"/></Relationships>'
+    )
+    workbook = (
+        _XML_HEAD + f'<workbook xmlns="{_NS_MAIN}" xmlns:r="{_NS_REL}"><bookViews><workbookView/></bookViews><sheets>'
+        + "".join(
+            f'<sheet name="{_xml_escape_text(nm)}" sheetId="{i}" r:id="rId{i}"/>' for i, nm in enumerate(names, start=1)
+        )
+        + "</sheets></workbook>"
+    )
+    wb_rels = (
+        _XML_HEAD + f'<Relationships xmlns="{_NS_PKG_REL}">'
+        + "".join(
+            f'<Relationship Id="rId{i}" Type="{_NS_REL}/worksheet" Target="worksheets/sheet{i}.xml"/>'
+            for i in range(1, n + 1)
+        )
+        + f'<Relationship Id="rId{n + 1}" Type="{_NS_REL}/styles" Target="styles.xml"/></Relationships>'
+    )
+    with zipfile.ZipFile(target, "w", compression=zipfile.ZIP_DEFLATED, compresslevel=1) as zf:
+        zf.writestr("[Content_Types].xml", content_types)
+        zf.writestr("_rels/.rels", root_rels)
+        zf.writestr("xl/workbook.xml", workbook)
+        zf.writestr("xl/_rels/workbook.xml.rels", wb_rels)
+        zf.writestr("xl/styles.xml", _STYLES)
+        with zf.open("xl/worksheets/sheet1.xml", "w", force_zip64=True) as fh:
+            _write_cover_sheet(fh, cover_rows)
+        for i, (_, table) in enumerate(sheets, start=2):
+            with zf.open(f"xl/worksheets/sheet{i}.xml", "w", force_zip64=True) as fh:
+                _write_table_sheet(fh, table)
 
 
 def write_xlsx(
@@ -371,8 +573,6 @@ def write_xlsx(
         carries no volume sheet and points to the CSV file. Other tables larger than the limit
         are split over numbered sheets.
     """
-    import xlsxwriter
-
     tables = _result_tables(result, wells)
     notes: list[str] = []
     monthly = tables["monthly"]
@@ -396,39 +596,18 @@ def write_xlsx(
     else:
         volume_sheet = ("forecast_monthly", monthly)
 
-    options = {
-        "strings_to_formulas": False,
-        "strings_to_numbers": False,
-        "strings_to_urls": False,
-        "constant_memory": True,
-        "in_memory": False,
-    }
-    own = not hasattr(target, "write")
-    wb = xlsxwriter.Workbook(str(target) if own else target, options)
-    try:
-        cover = wb.add_worksheet("cover")
-        cover.set_column(0, 0, 34)
-        cover.set_column(1, 1, 100)
-        wrap = wb.add_format({"text_wrap": True, "valign": "top"})
-        for r, (k, v) in enumerate(_cover_rows(result, notes)):
-            cover.write_string(r, 0, neutralise_text(str(k)))
-            v = _cover_value(v)
-            if isinstance(v, str):
-                cover.write_string(r, 1, v, wrap)
-            else:
-                cover.write_number(r, 1, v)
-        sheets: list[tuple[str, pd.DataFrame]] = [("wells", tables["wells"])]
-        if volume_sheet is not None:
-            sheets.append(volume_sheet)
-        sheets += [("units", tables["units"]), ("load_report", tables["load_report"])]
-        for name, table in sheets:
-            if len(table) <= cap:
-                _write_sheet(wb, name, table)
-            else:
-                for i, start in enumerate(range(0, len(table), cap), start=1):
-                    _write_sheet(wb, f"{name}_{i}", table.iloc[start : start + cap])
-    finally:
-        wb.close()
+    sheets: list[tuple[str, pd.DataFrame]] = [("wells", tables["wells"])]
+    if volume_sheet is not None:
+        sheets.append(volume_sheet)
+    sheets += [("units", tables["units"]), ("load_report", tables["load_report"])]
+    split: list[tuple[str, pd.DataFrame]] = []
+    for name, table in sheets:
+        if len(table) <= cap:
+            split.append((name, table))
+        else:  # a table larger than a worksheet goes over numbered sheets
+            for i, start in enumerate(range(0, len(table), cap), start=1):
+                split.append((f"{name}_{i}", table.iloc[start : start + cap]))
+    _write_workbook(target if not hasattr(target, "write") else target, _cover_rows(result, notes), split)
     return notes
 
 

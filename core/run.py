@@ -754,51 +754,56 @@ def _assemble_wells(prod, header, report, fluids, stages, fits, fsummary, actual
 
 
 def _assemble_monthly(prod: pd.DataFrame, fmonthly: pd.DataFrame, actual: pd.DataFrame) -> pd.DataFrame:
-    """Actual months from the tidy table, then forecast months; sorted by well and month."""
-    n = len(prod)
-    act = pd.DataFrame(
+    """Actual months from the tidy table, then forecast months, per well (wells sorted).
+
+    Built with numpy takes (no concat + sort of the whole table): each well's actual months
+    come first, then its forecast months (all after the as-of month). ``well_id`` and ``kind``
+    are categoricals (text values; small in memory for millions of rows).
+    """
+    # codes through the unique ids only (hashing millions of strings once each)
+    ca, ua = pd.factorize(prod["well_id"])
+    cf, uf = pd.factorize(fmonthly["well_id"])
+    ua, uf = pd.Index(ua).astype(str), pd.Index(uf).astype(str)
+    wells = ua.union(uf).sort_values()
+    a_code = wells.get_indexer(ua)[ca] if len(ca) else ca
+    f_code = wells.get_indexer(uf)[cf] if len(cf) else cf
+    n_a, n_f = len(a_code), len(f_code)
+    code = np.concatenate([a_code, f_code])
+    month = np.concatenate([
+        prod["month"].to_numpy(dtype="datetime64[ns]"),
+        pd.to_datetime(fmonthly["month"]).to_numpy(dtype="datetime64[ns]"),
+    ])
+    # stable sort by (well, month); actual months precede forecast months of the same well
+    order = np.lexsort((month, code))
+
+    def col(a_vals: Any, f_vals: Any) -> np.ndarray:
+        v = np.concatenate([np.asarray(a_vals, dtype=float), np.asarray(f_vals, dtype=float)])[order]
+        return np.where(np.isfinite(v), v, np.nan)
+
+    kind_code = np.concatenate([np.zeros(n_a, dtype=np.int8), np.ones(n_f, dtype=np.int8)])[order]
+    out = pd.DataFrame(
         {
-            "well_id": prod["well_id"].to_numpy(),
-            "month": prod["month"].to_numpy(),
-            "kind": np.full(n, "actual", dtype=object),
-            "oil_bbl": prod["oil_bbl"].to_numpy(dtype=float),
-            "gas_mcf": _col(prod, "gas_mcf").to_numpy(dtype=float),
-            "water_bbl": _col(prod, "water_bbl").to_numpy(dtype=float),
-            "oil_rate_bopd": _col(prod, "oil_rate_cal_bbl_d").to_numpy(dtype=float),
-            "cum_oil_bbl": prod["cum_oil_bbl"].to_numpy(dtype=float),
+            "well_id": pd.Categorical.from_codes(code[order], categories=wells),
+            "month": month[order],
+            "kind": pd.Categorical.from_codes(kind_code, categories=["actual", "forecast"]),
+            "oil_bbl": col(prod["oil_bbl"], _col(fmonthly, "oil_bbl")),
+            "gas_mcf": col(_col(prod, "gas_mcf"), _col(fmonthly, "gas_mcf")),
+            "water_bbl": col(_col(prod, "water_bbl"), _col(fmonthly, "water_bbl")),
+            "oil_rate_bopd": col(_col(prod, "oil_rate_cal_bbl_d"), _col(fmonthly, "oil_rate_bopd")),
+            "cum_oil_bbl": col(prod["cum_oil_bbl"], _col(fmonthly, "cum_oil_bbl")),
         }
     )
-    fm = fmonthly
-    if "stream" in fm.columns:
-        fm = fm[fm["stream"].astype(str) == "oil"]
-    m = len(fm)
-    fc = pd.DataFrame(
-        {
-            "well_id": fm["well_id"].to_numpy(),
-            "month": _month_start(fm["month"]).to_numpy(),
-            "kind": np.full(m, "forecast", dtype=object),
-            "oil_bbl": _col(fm, "oil_bbl").to_numpy(dtype=float),
-            "gas_mcf": _col(fm, "gas_mcf").to_numpy(dtype=float),
-            "water_bbl": _col(fm, "water_bbl").to_numpy(dtype=float),
-            "oil_rate_bopd": _col(fm, "oil_rate_bopd", "oil_rate_bbl_d").to_numpy(dtype=float),
-            "cum_oil_bbl": _col(fm, "cum_oil_bbl").to_numpy(dtype=float),
-        }
-    )
-    if m and fc["cum_oil_bbl"].isna().all():
-        base = actual.set_index("well_id")["cum_oil_bbl"]
-        fc["cum_oil_bbl"] = fc["well_id"].map(base).to_numpy(dtype=float) + fc.groupby("well_id", sort=False)["oil_bbl"].cumsum().to_numpy()
-    out = pd.concat([act, fc], ignore_index=True)
-    for c in ("oil_bbl", "gas_mcf", "water_bbl", "oil_rate_bopd", "cum_oil_bbl"):
-        v = out[c].to_numpy(dtype=float)
-        out[c] = np.where(np.isfinite(v), v, np.nan)
-    out["kind"] = out["kind"].astype(str)
-    out = out.sort_values(["well_id", "month"], kind="stable", ignore_index=True)
     return out[MONTHLY_COLUMNS]
 
 
 def _assemble_units(units_stage: pd.DataFrame, wells: pd.DataFrame) -> pd.DataFrame:
-    """Unit table: the stage tracker's unit view plus forecast totals from the wells table."""
-    w = wells.assign(unit=wells["unit"].astype(str))
+    """Unit table: the stage tracker's unit view plus forecast totals from the wells table.
+
+    Wells with no production month (every row rejected, or none up to the as-of month) belong
+    to no unit's totals; they keep their row in the wells table.
+    """
+    w = wells[wells["first_month"].notna()]
+    w = w.assign(unit=w["unit"].astype(str))
     ok = w["status"] == STATUS_OK
     g = w.groupby("unit", sort=True)
     totals = pd.DataFrame(

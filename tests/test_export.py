@@ -231,3 +231,31 @@ def test_write_outputs_writes_every_file(tmp_path):
     for p in paths.values():
         assert p.exists() and p.stat().st_size > 0
     assert (tmp_path / "out" / "wells.csv").read_bytes() == table_to_csv_bytes(_result().wells)
+
+
+def test_xlsx_text_round_trip_escaping_and_limits():
+    # XML 1.0 (W3C 2008) forbids most control characters: they become U+FFFD; '&', '<', '>'
+    # and CR survive as escapes; a cell holds at most 32,767 characters (Excel specification).
+    res = _result()
+    texts = ["a & b < c > d", "\rCR inside", "tab\there", "bell\x07", "ünïcødé 油井", "x" * 40_000]
+    wells = pd.DataFrame({"well_id": [f"T{i}" for i in range(len(texts))], "note": texts})
+    res = RunResult(**{**res.__dict__, "wells": wells})
+    wb = openpyxl.load_workbook(io.BytesIO(run_to_xlsx_bytes(res)))
+    got = [wb["wells"].cell(row=r, column=2).value for r in range(2, 2 + len(texts))]
+    assert got[0] == "a & b < c > d"
+    assert got[1] == "'\rCR inside"  # neutralised (starts with CR) and kept
+    assert got[2] == "tab\there"
+    assert got[3] == "bell\ufffd"
+    assert got[4] == "ünïcødé 油井"
+    assert got[5] == "x" * 32_767
+
+
+def test_xlsx_numbers_keep_full_precision():
+    # numbers are written in shortest round-trip form: read back bit-identical
+    vals = [1.0 / 3.0, 123456789.123456789, 1e-300, 2.5e17, 0.1 + 0.2]
+    res = _result()
+    res = RunResult(**{**res.__dict__, "units": pd.DataFrame({"unit": list("abcde"), "x": vals})})
+    wb = openpyxl.load_workbook(io.BytesIO(run_to_xlsx_bytes(res)))
+    assert [wb["units"].cell(row=r, column=2).value for r in range(2, 7)] == vals
+    rows = _csv_rows(tables_to_csv_bytes(res)["units.csv"])
+    assert [float(r[1]) for r in rows[1:]] == vals
