@@ -390,8 +390,58 @@ class _SeriesInput:
     attrs: pd.DataFrame  # index sid: pb_given, api, gamma_g, t_f, pi, first_mi, last_mi, applicable, reason
 
 
-def _prepare(production: pd.DataFrame, sid_col: str) -> tuple[pd.DataFrame, pd.DataFrame, pd.DataFrame]:
-    """Producing-month ln GOR table, survey table and per-series counts."""
+def _prepare(production: pd.DataFrame, sid_col: str):
+    """Producing-month ln GOR table, survey table, per-series counts and cumulative oil.
+
+    Fast path (one sort, numpy only) when every (series, month) is unique, as the tidy
+    monthly table guarantees; otherwise the grouped path sums duplicates.
+    """
+    prod = production
+    mi = _month_index(prod["month"])
+    sid = prod[sid_col].to_numpy()
+    order = np.lexsort((mi, sid))
+    sid_s, mi_s = sid[order], mi[order]
+    dup = (sid_s[1:] == sid_s[:-1]) & (mi_s[1:] == mi_s[:-1])
+    if dup.any():
+        return _prepare_grouped(production, sid_col)
+
+    def col(name, default=np.nan):
+        if name in prod:
+            return pd.to_numeric(prod[name], errors="coerce").to_numpy(float)[order]
+        return np.full(len(prod), default)
+
+    oil, gas = col("oil_bbl"), col("gas_mcf")
+    dim = col("days_in_month") if "days_in_month" in prod else pd.to_datetime(
+        prod["month"]).dt.days_in_month.to_numpy(float)[order]
+    days = col("days_on") if "days_on" in prod else dim.copy()
+    days = np.where(np.isfinite(days), days, dim)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        uptime = days / dim
+        gor = 1000.0 * gas / oil
+    good = (oil > 0) & np.isfinite(gas) & (gas > 0) & (days > 0) & (uptime >= MIN_UPTIME) & np.isfinite(gor)
+    oil0 = np.where(np.isfinite(oil) & (oil > 0), oil, 0.0)
+    n = len(sid_s)
+    new = np.r_[True, sid_s[1:] != sid_s[:-1]] if n else np.zeros(0, bool)
+    starts = np.flatnonzero(new)
+    csum = np.cumsum(oil0)
+    base = np.repeat(csum[starts] - oil0[starts], np.diff(np.r_[starts, n]))
+    cum_end = csum - base
+    months = pd.DataFrame({"sid": sid_s[good], "mi": mi_s[good], "z": np.log(gor[good]),
+                           "xs": (cum_end - oil0)[good], "xe": cum_end[good]})
+    p = col("pressure_psia")
+    okp = np.isfinite(p) & (p > 0)
+    surveys = pd.DataFrame({"sid": sid_s[okp], "mi": mi_s[okp], "p": p[okp], "x": (cum_end - 0.5 * oil0)[okp]})
+    ends = np.r_[starts[1:], n] - 1
+    gas_known = np.logical_or.reduceat(np.isfinite(gas), starts) if n else np.zeros(0, bool)
+    n_gor = np.add.reduceat(good.astype(np.int64), starts) if n else np.zeros(0, np.int64)
+    counts = pd.DataFrame({"first_mi": mi_s[starts], "last_mi": mi_s[ends], "gas_known": gas_known,
+                           "n_gor": n_gor}, index=pd.Index(sid_s[starts], name="sid"))
+    cumtab = pd.DataFrame({"sid": sid_s, "mi": mi_s, "cum_end": cum_end})
+    return months, surveys, counts, cumtab
+
+
+def _prepare_grouped(production: pd.DataFrame, sid_col: str):
+    """:func:`_prepare` for tables with repeated (series, month) rows (volumes summed)."""
     prod = production
     mi = _month_index(prod["month"])
     oil = pd.to_numeric(prod["oil_bbl"], errors="coerce").to_numpy(float) if "oil_bbl" in prod else np.full(len(prod), np.nan)

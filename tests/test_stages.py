@@ -401,3 +401,12 @@ def test_row_order_does_not_change_the_result():
     b = track_wells(prod.sample(frac=1.0, random_state=3), None, None)
     pd.testing.assert_frame_equal(a.sort_values("well_id").reset_index(drop=True),
                                   b.sort_values("well_id").reset_index(drop=True))
+
+
+def test_duplicate_well_months_are_summed_not_lost():
+    # Off-contract input (the loader never emits it): a well-month split over two rows is
+    # summed (grouped path), giving the same stage as the single-row table.
+    t = _table("D-1", _noisy(np.full(30, 600.0), 0.04, 13))
+    half = t.iloc[[10]].assign(oil_bbl=t["oil_bbl"].iloc[10] / 2, gas_mcf=t["gas_mcf"].iloc[10] / 2)
+    t2 = pd.concat([t.drop(index=10), half, half], ignore_index=True)
+    assert _row(track_wells(t2, None, None), "D-1")["stage"] == _row(track_wells(t, None, None), "D-1")["stage"] == 1
