@@ -397,7 +397,10 @@ def _decode(raw: bytes, name: str, messages: list) -> tuple[str, str]:
 def _sniff_delimiter(lines: list[str]) -> str:
     best, best_score = ",", (-1, -1)
     for d in (",", ";", "\t", "|"):
-        counts = [len(r) for r in csv.reader(lines, delimiter=d) if len(r) > 1]
+        try:
+            counts = [len(r) for r in csv.reader(lines, delimiter=d) if len(r) > 1]
+        except csv.Error:
+            continue
         if not counts:
             continue
         vals, freq = np.unique(counts, return_counts=True)
@@ -461,6 +464,12 @@ def _read_csv(raw: bytes, name: str, *, mapping: Mapping[str, str] | None,
     messages: list[str] = []
     sha = hashlib.sha256(raw).hexdigest()
     text, enc = _decode(raw, name, messages)
+    cr_fixed = False
+    if "\r" in text and text.count("\r") != text.count("\r\n"):
+        # old Mac (CR-only) or mixed line ends: one line break convention for every reader
+        text = text.replace("\r\n", "\n").replace("\r", "\n")
+        cr_fixed = True
+        messages.append(f"{name}: carriage-return line ends read as line breaks")
     nl = text.find("\n")
     first_len = len(text) if nl < 0 else nl
     if first_len > MAX_HEADER_BYTES:
@@ -477,7 +486,10 @@ def _read_csv(raw: bytes, name: str, *, mapping: Mapping[str, str] | None,
     if not non_blank:
         raise InputError(f"{name}: the file has no text lines (only blanks)")
     delim = _sniff_delimiter(non_blank)
-    sample = list(csv.reader(head_lines, delimiter=delim))
+    try:
+        sample = list(csv.reader(head_lines, delimiter=delim))
+    except csv.Error as exc:
+        raise InputError(f"{name}: the first lines cannot be read as {delim!r}-delimited text ({exc})") from None
     hdr = _find_header(sample, mapping)
     # header line index hdr counts blank lines too (csv.reader yields [] for them)
     header = _dedupe(sample[hdr]) if sample[hdr] else []
@@ -492,7 +504,7 @@ def _read_csv(raw: bytes, name: str, *, mapping: Mapping[str, str] | None,
     kw = dict(sep=delim, header=None, names=header, skiprows=hdr + 1, dtype=dtype, keep_default_na=False,
               na_values=[""], skip_blank_lines=False, low_memory=False, quotechar='"', nrows=nrows,
               decimal="," if dec else ".")
-    body = text if enc != "utf-8" else None
+    body = text if (enc != "utf-8" or cr_fixed) else None
     try:
         if body is None:
             frame = pd.read_csv(io.BytesIO(raw), encoding="utf-8-sig", **kw)
@@ -539,7 +551,7 @@ def _read_csv_slow(text: str, name: str, delim: str, header: list[str], hdr: int
     keep: list[list[str]] = []
     lines: list[int] = []
     bad: list[tuple[int, str, str]] = []
-    reader = csv.reader(io.StringIO(text), delimiter=delim)
+    reader = csv.reader(io.StringIO(text, newline=None), delimiter=delim)
     for i, r in enumerate(reader):
         if i <= hdr:
             continue

@@ -341,3 +341,45 @@ def test_numeric_well_ids_keep_leading_zeros():
     csv = b"API No,Month,Oil\n0042123456,2021-01,5\n0042123456,2021-02,4\n"
     res = load_production(csv, file_name="z.csv", as_of=AS_OF)
     assert list(res.production["well_id"]) == ["0042123456", "0042123456"]
+
+
+def test_carriage_return_line_ends():
+    res = load_production(DATA / "mac_cr.csv", as_of=AS_OF)
+    check_accounting(res)
+    assert list(res.production["source_row"]) == [2, 3] and list(res.production["oil_bbl"]) == [5.0, 4.0]
+
+
+# ------------------------------------------------------------------ mutation property (issue 9)
+
+from hypothesis import HealthCheck, given, settings  # noqa: E402
+from hypothesis import strategies as st  # noqa: E402
+
+_SEEDS = [p.read_bytes() for p in sorted(DATA.iterdir())
+          if p.suffix in (".csv", ".tsv", ".txt") and p.stat().st_size > 0 and p.name != "binary.csv"]
+_MUT = st.lists(st.tuples(st.sampled_from(["del", "ins", "rep"]), st.integers(0, 10**6),
+                          st.binary(min_size=1, max_size=4)
+                          | st.sampled_from([b",", b";", b"\n", b"\r", b'"', b"\t", b"-", b"n/a", b"1e400", b"\xff",
+                                             b"\x00", b"=", b"13/13/2021", b"2099-01"])), max_size=6)
+
+
+@settings(max_examples=40, deadline=None, suppress_health_check=list(HealthCheck))
+@given(st.integers(0, len(_SEEDS) - 1), _MUT)
+def test_mutated_files_load_or_give_one_clear_message(i, muts):
+    """Any byte-level damage to a corpus file gives a LoadResult that keeps the accounting, or an
+    InputError with a one-line message naming the file; never another exception."""
+    b = bytearray(_SEEDS[i])
+    for op, pos, data in muts:
+        pos %= len(b) + 1
+        if op == "del":
+            del b[pos:pos + len(data)]
+        elif op == "ins":
+            b[pos:pos] = data
+        else:
+            b[pos:pos + len(data)] = data
+    try:
+        res = load_production(bytes(b), file_name="mutated.csv", as_of=AS_OF)
+    except InputError as exc:
+        assert str(exc).startswith("mutated.csv: ")
+        assert "\n" not in str(exc)
+        return
+    check_accounting(res)

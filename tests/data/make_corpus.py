@@ -158,6 +158,7 @@ TEXT_FILES: dict[str, str] = {
         "Finch 20,North Lobe,,33,0.7,180,3000,1900\n"
     ),
     "header_only.csv": "Well,Date,Oil,Gas\n",
+    "mac_cr.csv": "Well,Date,Oil\rHoopoe 23,2021-01,5\rHoopoe 23,2021-02,4\r",
     "no_oil_column.csv": "Well,Date,Condensate rate (bbl/d)\nA,2021-01,5\n",
     "only_blank_lines.csv": "\n\n\n",
 }
