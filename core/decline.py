@@ -736,6 +736,8 @@ class DeclineSettings:
         Relative cost change at convergence. Default 1e-8 (as scipy's least_squares ftol).
     chunk_wells : int
         Wells per batch (memory per batch ~ chunk x months x 100 bytes). Default 4096.
+    block_wells : int
+        Wells prepared at a time (bounds the per-row work arrays). Default 25,000.
     """
 
     b_max: float = 2.0
@@ -760,6 +762,7 @@ class DeclineSettings:
     max_iter: int = 100
     tol: float = 1e-8
     chunk_wells: int = 4096
+    block_wells: int = 25_000
 
     def __post_init__(self) -> None:
         check_range("b_max", self.b_max, 0.0, 2.0, lo_open=True)
@@ -778,6 +781,7 @@ class DeclineSettings:
         check_range("uptime_months", self.uptime_months, 1, 120)
         check_range("max_iter", self.max_iter, 1, 10000)
         check_range("chunk_wells", self.chunk_wells, 1, None)
+        check_range("block_wells", self.block_wells, 1, None)
         if self.loss not in LOSSES:
             raise ValueError(f"loss must be one of {LOSSES}, got {self.loss!r}")
         if self.criterion not in CRITERIA:
@@ -1253,9 +1257,15 @@ def fit_field(
         if stream == "gas" and not np.isfinite(rate).any():
             continue  # the file has no gas column
         ovs = _override_lookup(overrides, wells, stream)
-        fres = _fit_stream(stream, wells, wcode, mi_all, rate, days_on, uptime, dim, rs_stage, ovs, st, kw)
-        fit_tables.append(fres[0])
-        cand_tables.append(fres[1])
+        # blocks of wells bound the memory of the per-row work arrays on very large fields
+        for w0 in range(0, n_wells, st.block_wells):
+            w1 = min(w0 + st.block_wells, n_wells)
+            r0, r1 = np.searchsorted(wcode, [w0, w1])
+            ovs_b = {k - w0: v for k, v in ovs.items() if w0 <= k < w1}
+            fres = _fit_stream(stream, wells[w0:w1], wcode[r0:r1] - w0, mi_all[r0:r1], rate[r0:r1],
+                               days_on[r0:r1], uptime[r0:r1], dim[r0:r1], rs_stage[w0:w1], ovs_b, st, kw)
+            fit_tables.append(fres[0])
+            cand_tables.append(fres[1])
     fits = (pd.concat(fit_tables, ignore_index=True) if fit_tables
             else pd.DataFrame({c: [] for c in FIT_COLUMNS}))
     cands = (pd.concat(cand_tables, ignore_index=True) if cand_tables

@@ -102,6 +102,7 @@ def forecast_field(
     *,
     settings: DeclineSettings | None = None,
     as_of=None,
+    monthly: bool = True,
 ) -> tuple[pd.DataFrame, pd.DataFrame]:
     """Forecast every well's monthly oil and gas to the economic limit or the horizon.
 
@@ -118,6 +119,9 @@ def forecast_field(
     as_of : month, optional
         Production after this month is ignored; the forecast starts the month after each
         well's last actual month up to ``as_of``. Pass the same cut table to ``fit_field``.
+    monthly : bool
+        False skips the monthly table (returned empty); the summary is the same (remaining
+        volumes come from the closed-form cumulative either way).
 
     Returns
     -------
@@ -222,76 +226,24 @@ def forecast_field(
     end_day = fsd_d + t_end * DAYS_PER_YEAR
     end_mi = np.floor(end_day - 1e-7).astype(np.int64).astype("datetime64[D]").astype("datetime64[M]").astype(np.int64)
     n_k = np.where(fc & ~below, np.clip(end_mi - start_mi + 1, 0, h_months), 0)
-    # ---- monthly rows
-    N = int(n_k.sum())
-    rep = np.repeat(np.arange(n_w), n_k)
-    offs = np.cumsum(n_k) - n_k
-    k = np.arange(N) - offs[rep]
-    m_mi = start_mi[rep] + k
-    day_lo = _mi_to_day(m_mi)
-    day_hi = _mi_to_day(m_mi + 1)
-    hi_day = np.minimum(day_hi.astype(float), end_day[rep])
-    days_m = day_hi - day_lo
-    up = uptime[rep]
-
-    first_row = np.zeros(N, dtype=bool)
-    first_row[offs[n_k > 0]] = True
-
-    def stream_volumes(okm, qi, di, b, dl, fsd):
-        """Calendar volumes and cumulative-since-start of one stream on the monthly rows.
-
-        Np is evaluated once per month end; a month's volume is the difference with the
-        previous month end (the forecast start for the first month): exact integrals.
-        """
-        if N == 0 or not okm[rep].any():
-            return np.zeros(N), np.zeros(N)
-        wsel = okm & (n_k > 0)
-        t_sw = switch_time(di, b, dl)
-        t_sw_f = np.where(np.isfinite(t_sw), t_sw, 0.0)
-        q_sw = qi * np.exp(-_log1p_over(b, di * t_sw_f))
-        np_sw = _cum_unchecked(t_sw_f, qi, di, b)
+    # ---- remaining per well: closed-form cumulative between the forecast start and end
+    def remaining(okm, qi, di, b, dl, fsd):
         tst = np.maximum((start_day - fsd) / DAYS_PER_YEAR, 0.0)
-        np_st = _mh_cum_unchecked(tst, qi, di, b, dl)
-        r = rep
-        th = np.maximum((hi_day - fsd[r]) / DAYS_PER_YEAR, tst[r])
-        hyp = _cum_unchecked(th, qi[r], di[r], b[r])
-        dt = np.maximum(th - t_sw_f[r], 0.0)
-        dlr = dl[r]
-        tail = np_sw[r] + q_sw[r] * (-np.expm1(-dlr * dt)) / dlr * DAYS_PER_YEAR
-        np_hi = np.where(th <= t_sw[r], hyp, tail)
-        np_lo = np.empty(N)
-        np_lo[1:] = np_hi[:-1]
-        np_lo[first_row] = np_st[r[first_row]]
-        vol = np.maximum(np_hi - np_lo, 0.0) * up
-        since = np.maximum(np_hi - np_st[r], 0.0) * up
-        okr = wsel[r]
-        return np.where(okr, vol, 0.0), np.where(okr, since, 0.0)
+        ten = np.maximum((end_day - fsd) / DAYS_PER_YEAR, tst)
+        rem = (_mh_cum_unchecked(ten, qi, di, b, dl) - _mh_cum_unchecked(tst, qi, di, b, dl)) * uptime
+        rem = np.where(okm & (n_k > 0) & np.isfinite(rem), np.maximum(rem, 0.0), 0.0)
+        return rem
 
-    oil_v, oil_since = stream_volumes(ok_o, qi_o, di_o, b_o, dl_o, fsd_o)
-    gas_v, gas_since = stream_volumes(ok_g, qi_g, di_g, b_g, dl_g, fsd_g)
-    # gas without its own fit: oil x recent GOR
+    rem_o = remaining(ok_o, qi_o, di_o, b_o, dl_o, fsd_o)
+    rem_g = remaining(ok_g, qi_g, di_g, b_g, dl_g, fsd_g)
     gas_by_gor = ok_o & ~ok_g & (gor > 0)
-    gg = gas_by_gor[rep]
-    gas_v = np.where(gg, oil_v * gor[rep] / 1000.0, gas_v)
-    gas_since = np.where(gg, oil_since * gor[rep] / 1000.0, gas_since)
-    # guard: finite, non-negative (the closed forms are finite for valid parameters)
-    oil_v = np.where(np.isfinite(oil_v), oil_v, 0.0)
-    gas_v = np.where(np.isfinite(gas_v), gas_v, 0.0)
-    oil_since = np.where(np.isfinite(oil_since), oil_since, 0.0)
-    gas_since = np.where(np.isfinite(gas_since), gas_since, 0.0)
-    monthly = pd.DataFrame({
-        "well_id": pd.array(wells.to_numpy(), dtype="str").take(rep),
-        "month": m_mi.astype("datetime64[M]").astype("datetime64[ns]"),
-        "kind": "forecast",
-        "oil_bbl": oil_v,
-        "gas_mcf": gas_v,
-        "oil_rate_bopd": oil_v / days_m,
-        "gas_rate_mcf_d": gas_v / days_m,
-        "cum_oil_bbl": cum_oil[rep] + oil_since,
-        "cum_gas_mcf": cum_gas[rep] + gas_since,
-    })
-    rem_o = np.bincount(rep, weights=oil_v, minlength=n_w)
-    rem_g = np.bincount(rep, weights=gas_v, minlength=n_w)
+    rem_g = np.where(gas_by_gor, rem_o * gor / 1000.0, rem_g)
+    if monthly:
+        monthly_table = _monthly_rows(wells, n_w, n_k, start_mi, start_day, end_day, uptime, cum_oil, cum_gas,
+                                      gor, gas_by_gor, (ok_o, qi_o, di_o, b_o, dl_o, fsd_o),
+                                      (ok_g, qi_g, di_g, b_g, dl_g, fsd_g))
+    else:
+        monthly_table = pd.DataFrame({c: [] for c in MONTHLY_COLUMNS})
     # ---- summary
     status = np.full(n_w, "", dtype=object)
     fo_status = fo["status"].fillna("not fitted: no fit for this well").to_numpy(object)
@@ -341,4 +293,77 @@ def forecast_field(
         "eur_gas_mcf": cum_gas + rem_g,
         "gas_method": np.where(ok_g & fc, "own decline", np.where(gas_by_gor, "oil x recent GOR", "none")),
     })
-    return summary[SUMMARY_COLUMNS], monthly[MONTHLY_COLUMNS]
+    return summary[SUMMARY_COLUMNS], monthly_table
+
+
+def _monthly_rows(wells, n_w, n_k, start_mi, start_day, end_day, uptime, cum_oil, cum_gas, gor, gas_by_gor,
+                  oil_p, gas_p) -> pd.DataFrame:
+    """The monthly forecast rows of every well (vectorised over all well-months)."""
+    # ---- monthly rows
+    N = int(n_k.sum())
+    rep = np.repeat(np.arange(n_w), n_k)
+    offs = np.cumsum(n_k) - n_k
+    k = np.arange(N) - offs[rep]
+    m_mi = start_mi[rep] + k
+    day_lo = _mi_to_day(m_mi)
+    day_hi = _mi_to_day(m_mi + 1)
+    hi_day = np.minimum(day_hi.astype(float), end_day[rep])
+    days_m = day_hi - day_lo
+    up = uptime[rep]
+
+    first_row = np.zeros(N, dtype=bool)
+    first_row[offs[n_k > 0]] = True
+
+    def stream_volumes(okm, qi, di, b, dl, fsd):
+        """Calendar volumes and cumulative-since-start of one stream on the monthly rows.
+
+        Np is evaluated once per month end; a month's volume is the difference with the
+        previous month end (the forecast start for the first month): exact integrals.
+        """
+        if N == 0 or not okm[rep].any():
+            return np.zeros(N), np.zeros(N)
+        wsel = okm & (n_k > 0)
+        t_sw = switch_time(di, b, dl)
+        t_sw_f = np.where(np.isfinite(t_sw), t_sw, 0.0)
+        q_sw = qi * np.exp(-_log1p_over(b, di * t_sw_f))
+        np_sw = _cum_unchecked(t_sw_f, qi, di, b)
+        tst = np.maximum((start_day - fsd) / DAYS_PER_YEAR, 0.0)
+        np_st = _mh_cum_unchecked(tst, qi, di, b, dl)
+        r = rep
+        th = np.maximum((hi_day - fsd[r]) / DAYS_PER_YEAR, tst[r])
+        hyp = _cum_unchecked(th, qi[r], di[r], b[r])
+        dt = np.maximum(th - t_sw_f[r], 0.0)
+        dlr = dl[r]
+        tail = np_sw[r] + q_sw[r] * (-np.expm1(-dlr * dt)) / dlr * DAYS_PER_YEAR
+        np_hi = np.where(th <= t_sw[r], hyp, tail)
+        np_lo = np.empty(N)
+        np_lo[1:] = np_hi[:-1]
+        np_lo[first_row] = np_st[r[first_row]]
+        vol = np.maximum(np_hi - np_lo, 0.0) * up
+        since = np.maximum(np_hi - np_st[r], 0.0) * up
+        okr = wsel[r]
+        return np.where(okr, vol, 0.0), np.where(okr, since, 0.0)
+
+    oil_v, oil_since = stream_volumes(*oil_p)
+    gas_v, gas_since = stream_volumes(*gas_p)
+    # gas without its own fit: oil x recent GOR
+    gg = gas_by_gor[rep]
+    gas_v = np.where(gg, oil_v * gor[rep] / 1000.0, gas_v)
+    gas_since = np.where(gg, oil_since * gor[rep] / 1000.0, gas_since)
+    # guard: finite, non-negative (the closed forms are finite for valid parameters)
+    oil_v = np.where(np.isfinite(oil_v), oil_v, 0.0)
+    gas_v = np.where(np.isfinite(gas_v), gas_v, 0.0)
+    oil_since = np.where(np.isfinite(oil_since), oil_since, 0.0)
+    gas_since = np.where(np.isfinite(gas_since), gas_since, 0.0)
+    monthly = pd.DataFrame({
+        "well_id": pd.array(wells.to_numpy(), dtype="str").take(rep),
+        "month": m_mi.astype("datetime64[M]").astype("datetime64[ns]"),
+        "kind": "forecast",
+        "oil_bbl": oil_v,
+        "gas_mcf": gas_v,
+        "oil_rate_bopd": oil_v / days_m,
+        "gas_rate_mcf_d": gas_v / days_m,
+        "cum_oil_bbl": cum_oil[rep] + oil_since,
+        "cum_gas_mcf": cum_gas[rep] + gas_since,
+    })
+    return monthly[MONTHLY_COLUMNS]

@@ -310,3 +310,14 @@ def test_single_and_multiple_hyperbolic_starts_agree(monkeypatch):
     h1 = one[one.family == "hyperbolic"].robust_cost.to_numpy()
     h3 = three[three.family == "hyperbolic"].robust_cost.to_numpy()
     assert np.all(h1 <= h3 * (1 + 1e-6))
+
+
+def test_blocks_of_wells_give_the_same_fits():
+    # Invariance: preparing the field in blocks of 2 wells equals one block
+    rng = np.random.default_rng(8)
+    wells = {f"K-{i}": arps_rate(month_t(50), rng.uniform(50, 900), rng.uniform(0.2, 2), rng.uniform(0, 2))
+             * np.exp(rng.normal(0, 0.1, 50)) for i in range(5)}
+    ov = {"K-3": WellOverride(b=0.7)}
+    a = fit_field(make_table(wells), settings=DeclineSettings(workers=1), overrides=ov).fits
+    b = fit_field(make_table(wells), settings=DeclineSettings(workers=1, block_wells=2), overrides=ov).fits
+    pd.testing.assert_frame_equal(a, b)

@@ -195,3 +195,17 @@ def test_any_nonnegative_history_gives_valid_fit_or_reason(histories, limit):
         assert (np.diff(g.oil_rate_bopd.to_numpy()) <= 1e-9 * (1 + g.oil_rate_bopd.max())).all()
         assert (np.diff(g.cum_oil_bbl.to_numpy()) >= 0).all()
         assert (np.diff(g.cum_gas_mcf.to_numpy()) >= 0).all()
+
+
+def test_monthly_sums_equal_summary_and_summary_only_mode():
+    # Closed-form identity: the monthly volumes telescope to the remaining volume of the summary
+    d_lim = nominal_from_tangent_effective(0.06)
+    fits, prod = one_well(600.0, 1.2, 1.1, d_lim=d_lim, n_hist=5, gas_factor=3.0, uptime=0.8)
+    st = DeclineSettings(econ_limit_bopd=3.0)
+    s, m = forecast_field(fits, prod, settings=st)
+    assert_allclose(m.oil_bbl.sum(), s.remaining_oil_bbl.iloc[0], rtol=1e-9)
+    assert_allclose(m.gas_mcf.sum(), s.remaining_gas_mcf.iloc[0], rtol=1e-9)
+    assert_allclose(m.cum_oil_bbl.iloc[-1], s.eur_oil_bbl.iloc[0], rtol=1e-9)
+    s2, m2 = forecast_field(fits, prod, settings=st, monthly=False)
+    pd.testing.assert_frame_equal(s, s2)
+    assert len(m2) == 0 and list(m2.columns) == MONTHLY_COLUMNS
