@@ -345,7 +345,7 @@ def record_run(db: str, result: Any, load: Any, *, field_name: str | None, out_d
     try:
         store = open_store(db)
         try:
-            previous = store.latest_run(name)
+            previous = store.latest_run(name, tables=())  # its wells table is enough
             store.save_run(result, field=name, load=load, inputs=dict(result.inputs), as_of_month=result.as_of)
         finally:
             store.close()

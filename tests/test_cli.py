@@ -160,3 +160,27 @@ def test_progress_bar_draws_only_when_enabled():
     bar.close()
     text = s.getvalue()
     assert "[#####.....]  50%  half" in text and "[##########] 100%  done" in text and text.endswith("\n")
+
+
+def test_input_options_reach_the_loader(tmp_path, monkeypatch):
+    # --units, --unit-column, --sheet, --pressure-kind, --max-file-mb and --wells are loader inputs
+    import core.production as production
+
+    seen = {}
+
+    def fake_load(source, **kwargs):
+        seen.update(kwargs, source=source)
+        raise InputError("stop here")
+
+    monkeypatch.setattr(production, "load_production", fake_load)
+    f = tmp_path / "p.xlsx"
+    f.write_bytes(b"x")
+    h = tmp_path / "h.csv"
+    h.write_text("well_id\nA\n")
+    code, _, err = _run(["forecast", str(f), "--out", str(tmp_path / "o"), "--units", "metric",
+                         "--unit-column", "Zone", "--sheet", "Monthly", "--pressure-kind", "static_bhp",
+                         "--max-file-mb", "1.5", "--wells", str(h)])
+    assert code == EXIT_INPUT and "stop here" in err
+    assert seen["units"] == "metric" and seen["unit_column"] == "Zone" and seen["sheet"] == "Monthly"
+    assert seen["pressure_kind"] == "static_bhp" and seen["max_bytes"] == int(1.5 * 2**20)
+    assert str(seen["well_header"]) == str(h) and str(seen["source"]) == str(f)

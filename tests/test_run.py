@@ -311,3 +311,21 @@ def test_sample_field_run():
     for name, table in (("wells", w), ("monthly", res.monthly), ("units", res.units)):
         num = table.select_dtypes("number").to_numpy(dtype=float, na_value=np.nan)
         assert not np.isinf(num).any(), name
+
+
+def test_command_on_an_xlsx_input_with_a_named_sheet(tmp_path, field_files, result):
+    prod = pd.read_csv(field_files["clean"])
+    x = tmp_path / "production.xlsx"
+    with pd.ExcelWriter(x, engine="openpyxl") as xw:
+        pd.DataFrame({"note": ["not this sheet"]}).to_excel(xw, sheet_name="Notes", index=False)
+        prod.to_excel(xw, sheet_name="Monthly", index=False)
+    base = ["forecast", str(x), "--wells", str(field_files["header"]), "--econ-limit-bopd", "2", "--workers", "1",
+            "--no-xlsx"]
+    err = io.StringIO()
+    assert main(base + ["--out", str(tmp_path / "o"), "--sheet", "Monthly"], stdout=io.StringIO(), stderr=err) == 0, err.getvalue()
+    w = pd.read_csv(tmp_path / "o" / "wells.csv", keep_default_na=False)
+    assert len(w) == len(result.wells)
+    assert not (tmp_path / "o" / "forecast.xlsx").exists()
+    err = io.StringIO()
+    assert main(base + ["--out", str(tmp_path / "p"), "--sheet", "Nope"], stdout=io.StringIO(), stderr=err) == 2
+    assert "Nope" in err.getvalue() and len(err.getvalue().strip().splitlines()) == 1
