@@ -42,7 +42,6 @@ from scipy.optimize import OptimizeWarning, curve_fit  # noqa: E402
 from core.decline import (  # noqa: E402
     MODEL_NAMES,
     DeclineSettings,
-    _fit_chunk,
     _run_chunks,
     arps_rate,
     fit_field,
@@ -61,23 +60,28 @@ def synthetic_table(n_wells: int, seed: int, noise: float) -> tuple[pd.DataFrame
     b[rng.random(n_wells) < 0.10] = 1.0
     start = (2000 - 1970) * 12 + rng.integers(0, 120, n_wells)  # first month (months since 1970-01)
     total = int(n_m.sum())
-    w = np.repeat(np.arange(n_wells), n_m)
-    k = np.arange(total) - np.repeat(np.cumsum(n_m) - n_m, n_m)
-    mi = start[w] + k
+    w = np.repeat(np.arange(n_wells, dtype=np.int32), n_m)
+    mi = start[w] + (np.arange(total) - np.repeat(np.cumsum(n_m) - n_m, n_m))
     month = mi.astype("datetime64[M]")
+    del mi
     day0 = month.astype("datetime64[D]").astype(np.int64)
-    dim = ((month + 1).astype("datetime64[D]").astype(np.int64) - day0).astype(np.int64)
-    t = (day0 - start[w].astype("datetime64[M]").astype("datetime64[D]").astype(np.int64) + dim / 2) / 365.25
-    q = arps_rate(t, qi[w], di[w], b[w]) * np.exp(rng.normal(0.0, noise, total))
-    ids = np.array([f"SYN-{i:06d}" for i in range(n_wells)], dtype=object)
+    dim = (month + 1).astype("datetime64[D]").astype(np.int64) - day0
+    t = day0 - start[w].astype("datetime64[M]").astype("datetime64[D]").astype(np.int64)
+    del day0
+    t = (t + dim / 2) / 365.25
+    q = arps_rate(t, qi[w], di[w], b[w])
+    del t
+    q *= np.exp(rng.normal(0.0, noise, total))
+    ids = pd.array(np.array([f"SYN-{i:06d}" for i in range(n_wells)], dtype=object), dtype="str")
     table = pd.DataFrame({
-        "well_id": ids[w],
+        "well_id": ids.take(w),
         "month": month.astype("datetime64[ns]"),
         "days_on": dim.astype(float),
         "days_in_month": dim,
         "oil_bbl": q * dim,
         "oil_rate_bbl_d": q,
     })
+    del w, month, dim, q
     truth = pd.DataFrame({"well_id": ids, "qi": qi, "di": di, "b": b, "months": n_m})
     return table, truth
 
@@ -146,6 +150,11 @@ def main(argv=None) -> int:
     ap.add_argument("--noise", type=float, default=0.10, help="lognormal sigma of the rate noise")
     ap.add_argument("--seed", type=int, default=20261201)
     ap.add_argument("--econ-limit", type=float, default=2.0, help="bbl/d for the forecast")
+    ap.add_argument("--no-monthly", action="store_true",
+                    help="forecast summary only (default above 20,000 wells: the monthly table "
+                         "alone would hold ~300 rows per well)")
+    ap.add_argument("--skip-fit-only", action="store_true",
+                    help="skip the separate fitting-only timing (default above 20,000 wells)")
     args = ap.parse_args(argv)
     n = 100_000 if args.big else args.wells
     workers = args.workers or os.cpu_count() or 1
@@ -160,60 +169,60 @@ def main(argv=None) -> int:
     ff = fit_field(table, settings=st)
     t_fit_field, c_fit_field = time.perf_counter() - t1, cpu_s() - c1
     c2, t2 = cpu_s(), time.perf_counter()
-    summary, monthly = forecast_field(ff, table, settings=st)
+    with_monthly = not (args.no_monthly or n > 20_000)
+    summary, monthly = forecast_field(ff, table, settings=st, monthly=with_monthly)
     t_forecast, c_forecast = time.perf_counter() - t2, cpu_s() - c2
     fits = ff.fits
 
     # ---- fitting only, on the same prepared arrays (rebuilt here exactly as fit_field does)
     from core import decline as dec
 
-    captured = {}
+    captured = {"chunks": [], "kw": None}
     orig = dec._run_chunks
 
     def capture(chunks, kw, w):
-        captured["chunks"], captured["kw"] = chunks, kw
+        captured["chunks"].extend(chunks)
+        captured["kw"] = kw
         return orig(chunks, kw, w)
 
-    dec._run_chunks = capture
-    try:
-        fit_field(table, settings=st)
-    finally:
-        dec._run_chunks = orig
-    chunks = captured["chunks"]
-    c3, t3 = cpu_s(), time.perf_counter()
-    res = _run_chunks(chunks, captured["kw"], workers)
-    t_engine, c_engine = time.perf_counter() - t3, cpu_s() - c3
-    del res
-
-    # ---- straightforward approach on a random subset
+    skip_fit_only = args.skip_fit_only or n > 20_000
+    t_engine = c_engine = float("nan")
     rng = np.random.default_rng(args.seed + 1)
     ok_wells = fits.loc[fits.forecastable & fits.status.eq("ok"), "well_id"].to_numpy()
     m = min(args.subset, ok_wells.size)
     pick = rng.choice(ok_wells, m, replace=False)
+    if not skip_fit_only:
+        dec._run_chunks = capture
+        try:
+            fit_field(table, settings=st)
+        finally:
+            dec._run_chunks = orig
+        chunks = captured["chunks"]
+        c3, t3 = cpu_s(), time.perf_counter()
+        res = _run_chunks(chunks, captured["kw"], workers)
+        t_engine, c_engine = time.perf_counter() - t3, cpu_s() - c3
+        del res
+
+    # ---- straightforward approach on a random subset
     c4, t4 = cpu_s(), time.perf_counter()
     ref = per_well_approach(table, fits, pick, st)
     t_ref, c_ref = time.perf_counter() - t4, cpu_s() - c4
     ref_rate = m / t_ref
 
-    # ---- parity: engine robust cost per family vs the per-well fit
-    cost = {}
-    for c, r in zip(chunks, _run_chunks([c for c in chunks], captured["kw"], workers)):
-        for j, fam in enumerate(MODEL_NAMES):
-            for wi_, cv in zip(c["wells"], r[fam]["cost"]):
-                cost[(wi_, fam)] = cv
-    pos = {w: i for i, w in enumerate(pd.unique(table.well_id))}
+    # ---- parity: engine robust cost per family (candidates table) vs the per-well fit
+    cost = ff.candidates.set_index(["well_id", "family"])["robust_cost"]
     share = {}
     for fam in MODEL_NAMES:
-        good = sum(cost[(pos[w], fam)] <= ref[w][fam] * (1 + 1e-3) + 1e-12 for w in pick)
-        share[fam] = good / m
-    all3 = sum(all(cost[(pos[w], f)] <= ref[w][f] * (1 + 1e-3) + 1e-12 for f in MODEL_NAMES) for w in pick) / m
-
+        share[fam] = sum(cost[(w, fam)] <= ref[w][fam] * (1 + 1e-3) + 1e-12 for w in pick) / m
+    all3 = sum(all(cost[(w, f)] <= ref[w][f] * (1 + 1e-3) + 1e-12 for f in MODEL_NAMES) for w in pick) / m
+    n_chunks = len(captured["chunks"])
     own = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
     kids = resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss / 1024
-    print(f"engine fitting only (3 families, {len(chunks)} batches, {workers} processes): "
+    print(f"engine fitting only (3 families, {n_chunks} batches, {workers} processes): "
           f"{t_engine:.2f} s wall = {n / t_engine:,.0f} wells/s ({c_engine:.2f} CPU s)")
     print(f"engine end to end: fit_field {t_fit_field:.2f} s ({c_fit_field:.2f} CPU s) + forecast_field "
-          f"{t_forecast:.2f} s ({c_forecast:.2f} CPU s, {len(monthly):,} forecast months) = "
+          f"{t_forecast:.2f} s ({c_forecast:.2f} CPU s, "
+          f"{f'{len(monthly):,} forecast months' if with_monthly else 'summary only'}) = "
           f"{t_fit_field + t_forecast:.2f} s = {n / (t_fit_field + t_forecast):,.0f} wells/s")
     print(f"per-well approach (pandas groupby + curve_fit x 3 families), random subset of {m} wells, "
           f"one process: {t_ref:.2f} s wall ({c_ref:.2f} CPU s) = {ref_rate:,.1f} wells/s; "
