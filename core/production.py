@@ -600,7 +600,7 @@ def _read_xlsx(raw: bytes, name: str, *, sheet: str | int | None, mapping: Mappi
     try:
         zf = zipfile.ZipFile(io.BytesIO(raw))
         infos = zf.infolist()
-    except (zipfile.BadZipFile, OSError, ValueError):
+    except Exception:  # noqa: BLE001 - any failure to open the archive is one clear message
         raise InputError(f"{name}: not a valid XLSX workbook (not a readable zip archive)") from None
     names = {i.filename for i in infos}
     if "xl/workbook.xml" not in names:
@@ -617,7 +617,7 @@ def _read_xlsx(raw: bytes, name: str, *, sheet: str | int | None, mapping: Mappi
                 if b"<f>" in chunk or b"<f " in chunk or b":f>" in chunk:
                     has_formula = True
                     break
-    except (zipfile.BadZipFile, OSError, ValueError, RuntimeError):
+    except Exception:  # noqa: BLE001 - zlib, zipfile and struct errors of a damaged archive
         raise InputError(f"{name}: the workbook is damaged (a sheet cannot be unpacked)") from None
 
     def open_wb(data_only: bool):

@@ -383,3 +383,41 @@ def test_mutated_files_load_or_give_one_clear_message(i, muts):
         assert "\n" not in str(exc)
         return
     check_accounting(res)
+
+
+def _seed_workbook() -> bytes:
+    import openpyxl
+
+    wb = openpyxl.Workbook()
+    ws = wb.active
+    ws.append(["Well", "Month", "Oil", "Gas"])
+    for i in range(12):
+        ws.append(["Avocet 24", f"2021-{i + 1:02d}", 100 - i, "=C2*2" if i == 3 else 50])
+    buf = io.BytesIO()
+    wb.save(buf)
+    return buf.getvalue()
+
+
+_WB = _seed_workbook()
+
+
+@settings(max_examples=25, deadline=None, suppress_health_check=list(HealthCheck))
+@given(st.lists(st.tuples(st.sampled_from(["del", "ins", "rep"]), st.integers(0, 10**6),
+                          st.binary(min_size=1, max_size=8)), min_size=1, max_size=4))
+def test_mutated_workbooks_load_or_give_one_clear_message(muts):
+    """Damaged XLSX bytes (bad zip, bad deflate stream, bad XML) never escape as another exception."""
+    b = bytearray(_WB)
+    for op, pos, data in muts:
+        pos %= len(b) + 1
+        if op == "del":
+            del b[pos:pos + len(data)]
+        elif op == "ins":
+            b[pos:pos] = data
+        else:
+            b[pos:pos + len(data)] = data
+    try:
+        res = load_production(bytes(b), file_name="mutated.xlsx", as_of=AS_OF)
+    except InputError as exc:
+        assert str(exc).startswith("mutated.xlsx: ") and "\n" not in str(exc)
+        return
+    check_accounting(res)
