@@ -57,6 +57,7 @@ UNIT = "dd_unit"  # unit shown on the planning page
 LAST_ERROR = "dd_last_error"
 TIMINGS = "dd_timings"
 PRESSURE_KIND = "dd_pressure_kind"  # what the pressure column holds (loader option)
+APPEND = "dd_append"  # stored dataset id the current file is appended to (monthly update)
 
 #: Environment variable for an app-level upload limit below the server's (MB).
 UPLOAD_LIMIT_ENV = "DEPLETION_DESK_MAX_UPLOAD_MB"
@@ -73,6 +74,7 @@ class Source:
     header_name: str | None = None
     header_content: bytes | None = None
     header_sha256: str | None = None
+    dataset_id: int | None = None  # kind "stored": a dataset kept in the store
 
 
 def _sha(b: bytes | None) -> str | None:
@@ -107,6 +109,7 @@ def init_state() -> None:
         ss[SOURCE] = sample_source() if SAMPLE_PRODUCTION.exists() else None
         # The sample is known-good: it is confirmed for computing straight away.
         ss[CONFIRMED] = None
+        ss["dd_reopen_pending"] = True
     ss.setdefault(MAPPING, {})
     ss.setdefault(SETTINGS, default_settings())
     ss.setdefault(OVERRIDES, {})
@@ -116,8 +119,11 @@ def init_state() -> None:
     ss.setdefault(UNIT, None)
     ss.setdefault(TIMINGS, {})
     ss.setdefault(PRESSURE_KIND, "average_reservoir")
+    ss.setdefault(APPEND, None)
     if ss[SOURCE] is not None and ss[SOURCE].kind == "sample" and ss.get(CONFIRMED) is None:
         ss[CONFIRMED] = load_key()
+    if ss.pop("dd_reopen_pending", False):
+        _reopen_last_kept_run()
     _restore_from_store()
 
 
@@ -156,11 +162,12 @@ def set_source(source: Source) -> None:
         return
     ss[SOURCE] = source
     ss[MAPPING] = {}
-    ss[CONFIRMED] = load_key() if source.kind == "sample" else None
+    ss[CONFIRMED] = load_key() if source.kind in ("sample", "stored") else None
     ss[WELL] = None
     ss[UNIT] = None
     ss[OVERRIDES] = {}
     ss[FLAGS] = []
+    ss[APPEND] = None
     _restore_from_store()
 
 
@@ -195,7 +202,8 @@ def load_key() -> str | None:
     units = ss.get(SETTINGS, {}).get("units", "field")
     unit_col = ss.get(SETTINGS, {}).get("unit_column")
     mapping = json.dumps(sorted(ss.get(MAPPING, {}).items()), default=str)
-    return "|".join([src.sha256, str(src.header_sha256), mapping, str(units), str(unit_col), ss.get(PRESSURE_KIND, "")])
+    return "|".join([src.sha256, str(src.header_sha256), mapping, str(units), str(unit_col), ss.get(PRESSURE_KIND, ""),
+                     str(ss.get(APPEND))])
 
 
 def _call_loader(src: Source, mapping: dict, units: str, unit_column: str | None, pressure_kind: str):
@@ -215,8 +223,31 @@ def _call_loader(src: Source, mapping: dict, units: str, unit_column: str | None
 
 
 @st.cache_resource(max_entries=6, show_spinner=False)
-def _cached_load(key: str, _src: Source, _mapping: dict, _units: str, _unit_column: str | None, _pressure_kind: str):
-    return _call_loader(_src, _mapping, _units, _unit_column, _pressure_kind)
+def _cached_load(key: str, _src: Source, _mapping: dict, _units: str, _unit_column: str | None, _pressure_kind: str,
+                 _append: int | None):
+    """(LoadResult, merge report or None) for the session's file, cached on the load key."""
+    if _src.kind == "stored":
+        return _stored_load(_src.dataset_id), None
+    load = _call_loader(_src, _mapping, _units, _unit_column, _pressure_kind)
+    if _append is None:
+        return load, None
+    from core.changes import merge_loads
+
+    held = _store().load_dataset(_append)
+    return merge_loads(held.production, held.wells, load)
+
+
+def _stored_load(dataset_id: int):
+    """A ``LoadResult`` rebuilt from a dataset kept in the store."""
+    from core.production import LoadResult
+
+    ds = _store().load_dataset(dataset_id)
+    return LoadResult(
+        production=ds.production, wells=ds.wells if ds.wells is not None else pd.DataFrame(),
+        report=ds.report if ds.report is not None else pd.DataFrame(), mapping=dict(ds.mapping or {}),
+        rows_read=ds.rows_read, rows_used=ds.rows_used, rows_rejected=ds.rows_rejected, file_name=ds.file_name,
+        content_sha256=ds.content_sha256, pressure_kind=ds.pressure_kind, messages=list(ds.messages or []),
+    )
 
 
 def current_load():
@@ -231,7 +262,83 @@ def current_load():
     ss = st.session_state
     settings = ss[SETTINGS]
     return _cached_load(load_key(), src, dict(ss[MAPPING]), settings.get("units", "field"),
-                        settings.get("unit_column"), ss[PRESSURE_KIND])
+                        settings.get("unit_column"), ss[PRESSURE_KIND], ss.get(APPEND))[0]
+
+
+def merge_report():
+    """The monthly update's merge report (``core.changes.merge_production``), None when the
+    file is not appended to a stored history."""
+    src = current_source()
+    ss = st.session_state
+    if src is None or ss.get(APPEND) is None:
+        return None
+    return _cached_load(load_key(), src, dict(ss[MAPPING]), ss[SETTINGS].get("units", "field"),
+                        ss[SETTINGS].get("unit_column"), ss[PRESSURE_KIND], ss.get(APPEND))[1]
+
+
+def stored_history() -> dict[str, Any] | None:
+    """The latest dataset kept in the store for the current field (without its tables), or
+    None: ``id``, ``file_name``, ``last_month``, ``rows_used``."""
+    src = current_source()
+    store = _store()
+    if store is None or src is None or src.kind == "stored":
+        return None
+    try:
+        d = store.list_datasets(store_field())
+    except (ValueError, OSError):
+        return None
+    d = d.loc[d["content_sha256"] != src.sha256] if "content_sha256" in d else d
+    if d.empty:
+        return None
+    top = d.sort_values("id").iloc[-1]
+    return {"id": int(top["id"]), "file_name": str(top["file_name"]), "last_month": month_text(top.get("last_month")),
+            "rows_used": int(top.get("rows_used", 0))}
+
+
+def set_pressure_kind(kind: str) -> None:
+    """What the file's pressure column holds (a loader option); the file is read again."""
+    st.session_state[PRESSURE_KIND] = kind
+    st.session_state[CONFIRMED] = None
+
+
+def set_append(dataset_id: int | None) -> None:
+    """Append the current file to a stored dataset's history (monthly update), or not."""
+    if st.session_state.get(APPEND) != dataset_id:
+        st.session_state[APPEND] = dataset_id
+        st.session_state[CONFIRMED] = None
+
+
+def _reopen_last_kept_run() -> None:
+    """On a session's first start: reopen the newest run kept in the store (its dataset and
+    settings; the forecast is recomputed from them) so a closed tab or a new team member sees
+    the team's last run. Without a kept run the bundled sample stays."""
+    store = _store()
+    if store is None:
+        return
+    try:
+        runs = store.list_runs()
+        runs = runs.loc[runs["dataset_id"].notna()]
+        if runs.empty:
+            return
+        top = runs.sort_values("id").iloc[-1]
+        kept = store.load_run(int(top["id"]))
+        ds = store.list_datasets()
+        ds = ds.loc[ds["id"] == int(top["dataset_id"])].iloc[0]
+    except (ValueError, OSError, IndexError) as exc:
+        st.session_state[LAST_ERROR] = f"the last kept run could not be reopened: {exc}"
+        return
+    ss = st.session_state
+    ss[SOURCE] = Source("stored", str(ds["file_name"]), b"", f"stored:{int(ds['id'])}:{ds['content_sha256']}",
+                        dataset_id=int(ds["id"]))
+    ss[MAPPING] = {}
+    ss[SETTINGS] = kept.run_settings().as_dict()
+    ss["dd_store_field_override"] = str(kept.field_key)
+    ss[CONFIRMED] = load_key()
+    ss["dd_reopened"] = f"run {int(top['id'])} of field {kept.field_key}"
+
+
+def reopened_note() -> str | None:
+    return st.session_state.get("dd_reopened")
 
 
 def file_columns() -> list[str]:
@@ -450,6 +557,8 @@ def store_field() -> str:
     src = current_source()
     if src is None:
         return "field"
+    if src.kind == "stored" and st.session_state.get("dd_store_field_override"):
+        return st.session_state["dd_store_field_override"]
     try:
         from core.storage import default_field_name
 
@@ -1112,8 +1221,10 @@ def save_run_to_store(run, author: str = "", note: str = "") -> int | None:
     store = _store()
     if store is None:
         raise InputError("the store cannot be opened: the run is not kept")
-    run_id = store.save_run(run, field=store_field(), load=current_load(), author=(author or "").strip(),
-                            note=(note or "").strip())
+    src = current_source()
+    kw: dict[str, Any] = {"dataset_id": src.dataset_id} if src.kind == "stored" else {
+        "load": current_load(), "merged_from": st.session_state.get(APPEND)}
+    run_id = store.save_run(run, field=store_field(), author=(author or "").strip(), note=(note or "").strip(), **kw)
     st.session_state["dd_saved_runs"] = {**st.session_state.get("dd_saved_runs", {}), run_key(): run_id}
     return run_id
 

@@ -27,6 +27,7 @@ pytestmark = pytest.mark.browser
 ROOT = Path(__file__).resolve().parents[1]
 ARTIFACTS = ROOT / "test-artifacts"
 SAMPLE = ROOT / "sample_wells" / "production.csv"
+HEADER = ROOT / "sample_wells" / "well_header.csv"
 CHROMIUM_CANDIDATES = ("/usr/bin/chromium", "/usr/bin/chromium-browser", "/usr/bin/google-chrome")
 LAUNCH_ARGS = [
     "--headless", "--no-sandbox", "--disable-gpu", "--disable-dev-shm-usage",
@@ -146,10 +147,16 @@ def test_upload_overview_well_download_and_screenshots(server, page, tmp_path):
     expect(page.get_by_role("heading", name="Load data").first).to_be_visible()
     _wait_idle(page)
 
-    # Upload a file of our own (other bytes than the bundled sample: its first 1,200 lines).
+    # Upload last month's file of the sample field (every row but the last month's: other
+    # bytes than the bundled sample) with the sample's well-header file.
     upload = tmp_path / "upload_field.csv"
-    upload.write_bytes(b"\n".join(SAMPLE.read_bytes().splitlines()[:1200]) + b"\n")
-    page.get_by_test_id("stFileUploader").first.locator("input[type=file]").set_input_files(str(upload))
+    lines = SAMPLE.read_bytes().splitlines()
+    last = max(line.split(b",")[1] for line in lines[1:])
+    upload.write_bytes(b"\n".join(line for line in lines if line.split(b",")[1] != last) + b"\n")
+    uploaders = page.get_by_test_id("stFileUploader")
+    uploaders.nth(1).locator("input[type=file]").set_input_files(str(HEADER))
+    _wait_idle(page)
+    uploaders.nth(0).locator("input[type=file]").set_input_files(str(upload))
     expect(page.get_by_text("How upload_field.csv was read")).to_be_visible()
     expect(page.get_by_test_id("stMetric").filter(has=page.get_by_text("Rows read", exact=True))).to_be_visible()
     page.get_by_role("button", name="Compute the forecast").click()

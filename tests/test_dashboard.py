@@ -58,6 +58,23 @@ def limit_run(sample_run):
     return run_field(load, settings=RunSettings(econ_limit_bopd=7.5))
 
 
+def _split_sample() -> tuple[bytes, bytes]:
+    """The sample file without its newest month, and a file with only the newest month."""
+    lines = SAMPLE.read_bytes().splitlines()
+    last = max(line.split(b",")[1] for line in lines[1:])
+    earlier = b"\n".join(line for line in lines if line.split(b",")[1] != last) + b"\n"
+    newest = b"\n".join([lines[0]] + [line for line in lines[1:] if line.split(b",")[1] == last]) + b"\n"
+    return earlier, newest
+
+
+@pytest.fixture(scope="module")
+def earlier_run():
+    """core's run of the sample without its newest month (uploaded as quillmere_2026-09.csv)."""
+    earlier, _ = _split_sample()
+    load = load_production(earlier, file_name="quillmere_2026-09.csv", units="field")
+    return load, run_field(load, settings=RunSettings())
+
+
 def _app() -> AppTest:
     at = AppTest.from_file(APP, default_timeout=120).run()
     assert not at.exception, [e.value for e in at.exception]
@@ -224,7 +241,7 @@ def test_overrides_and_flags_survive_a_new_session():
     at.switch_page("pages/well.py").run()
     well = at.selectbox(key="well_pick").value
     at.checkbox(key="ov_fix_b").check()
-    at.number_input(key="ov_b").set_value(0.5)
+    at.number_input(key="ov_b").set_value(0.3)
     at.text_input(key="ov_reason").input("workover in the window")
     at.button(key=APPLY_OVERRIDE).click().run()
     _ok(at)
@@ -234,26 +251,25 @@ def test_overrides_and_flags_survive_a_new_session():
     _ok(at)
     # A new browser tab is a new session: the store gives back the override and the flag.
     again = _app()
-    assert again.session_state["dd_overrides"][well].b == 0.5
+    assert again.session_state["dd_overrides"][well].b == 0.3
     again.switch_page("pages/planning.py").run()
     flags = [d.value for d in again.dataframe if "note" in d.value.columns]
     assert flags and "pressure support study" in set(flags[0]["note"])
 
 
-def test_upload_through_the_page_then_compute(sample_run):
+def test_upload_through_the_page_then_compute(earlier_run):
+    _, expected = earlier_run
+    earlier, _ = _split_sample()
     at = _app()
-    # A file of our own: the sample's first 1,500 lines (other bytes than the sample, so a new load).
-    data = b"\n".join(SAMPLE.read_bytes().splitlines()[:1500]) + b"\n"
-    at.file_uploader(key="upload_production").set_value(("my_field.csv", data, "text/csv")).run()
+    at.file_uploader(key="upload_production").set_value(("quillmere_2026-09.csv", earlier, "text/csv")).run()
     _ok(at)
     # The report is shown before anything is computed.
     assert [b for b in at.button if b.key == "run_forecast"]
+    assert _metric(at, "Rows read") == f"{len(earlier.splitlines()) - 1:,}"
     at.button(key="run_forecast").click().run()
     _ok(at)
     at.switch_page("pages/overview.py").run()
     _ok(at)
-    load = load_production(data, file_name="my_field.csv", units="field")
-    expected = run_field(load, settings=RunSettings())
     assert _metric(at, "Wells") == f"{len(expected.wells):,}"
     assert _metric(at, "EUR oil") == _bbl(expected.wells["eur_oil_bbl"].sum())
 
@@ -292,3 +308,38 @@ def test_planning_page_shows_core_unit_table(sample_run):
     units = at.dataframe[0].value
     assert list(units["unit"]) == list(run.units["unit"])
     assert list(units["n_wells"]) == list(run.units["n_wells"])
+
+
+def test_monthly_update_appends_to_the_kept_history_and_reopens(sample_run, earlier_run):
+    earlier, newest = _split_sample()
+    # Last month: the file without its newest month, computed and kept in the store.
+    at = _app()
+    at.file_uploader(key="upload_production").set_value(("quillmere_2026-09.csv", earlier, "text/csv")).run()
+    at.button(key="run_forecast").click().run()
+    at.switch_page("pages/overview.py").run()
+    assert _metric(at, "EUR oil") == _bbl(earlier_run[1].wells["eur_oil_bbl"].sum())
+    at.button(key="save_run").click().run()
+    _ok(at)
+    # This month: a new session reopens the kept run; a file with only the newest month is
+    # appended to the kept history.
+    at = _app()
+    assert at.session_state["dd_source"].kind == "stored"
+    at.file_uploader(key="upload_production").set_value(("quillmere_2026-10.csv", newest, "text/csv")).run()
+    at.checkbox(key="append_history").check().run()
+    _ok(at)
+    at.button(key="run_forecast").click().run()
+    at.switch_page("pages/overview.py").run()
+    _ok(at)
+    # The appended history is the whole sample again, so the run is core's run of the sample
+    # (the production tables are compared first; the sample here has no well-header file).
+    from core.changes import merge_loads
+
+    prev = earlier_run[0]
+    merged, _ = merge_loads(prev.production, prev.wells, load_production(newest, file_name="n.csv", units="field"))
+    full = load_production(SAMPLE.read_bytes(), file_name=SAMPLE.name, units="field")
+    cols = ["well_id", "month", "oil_bbl", "gas_mcf", "water_bbl", "days_on", "cum_oil_bbl"]
+    pd.testing.assert_frame_equal(merged.production[cols].reset_index(drop=True), full.production[cols].reset_index(drop=True))
+    expected = run_field(full, settings=RunSettings())
+    assert _metric(at, "EUR oil") == _bbl(expected.wells["eur_oil_bbl"].sum())
+    s = _metric(at, "EUR change")
+    assert s.endswith(" bbl")

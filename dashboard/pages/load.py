@@ -45,6 +45,9 @@ if src is None:
     st.info("Upload a production file or open the sample field.")
     st.stop()
 
+if src.kind == "stored":
+    st.info(f"Reopened from the store: {state.reopened_note() or src.name}, with the team's overrides and "
+            "flags. Upload next month's file to update it, or open the sample field.")
 st.subheader(f"How {src.name} was read")
 if src.header_name:
     st.caption(f"Well-header file: {src.header_name}")
@@ -61,7 +64,31 @@ c3.metric("Rows rejected", f"{load.rows_rejected:,}")
 c4.metric("Wells", f"{state.load_well_count(load):,}")
 for message in load.messages:
     st.info(message)
-st.caption(f"Pressure data read as: {load.pressure_kind.replace('_', ' ')}.")
+kinds = ["average_reservoir", "static_bhp"]
+kind = st.radio(
+    "The pressure column holds", kinds, index=kinds.index(st.session_state[state.PRESSURE_KIND]),
+    format_func=lambda k: {"average_reservoir": "average reservoir pressure", "static_bhp": "static bottom-hole pressure"}[k],
+    key="pressure_kind", horizontal=True, disabled=src.kind == "stored",
+)
+if kind != st.session_state[state.PRESSURE_KIND]:
+    state.set_pressure_kind(kind)
+    st.rerun()
+
+held = state.stored_history()
+if held is not None:
+    append = st.checkbox(
+        f"Monthly update: append this file to the history kept for this field ({held['file_name']}, "
+        f"to {held['last_month']})",
+        value=st.session_state.get(state.APPEND) == held["id"], key="append_history",
+        help="Months already held are compared: repeats are dropped, conflicting values are "
+        "reported and the newer file wins; overrides and flags carry forward.",
+    )
+    state.set_append(held["id"] if append else None)
+    load = state.current_load()
+    merge = state.merge_report()
+    if merge is not None:
+        st.markdown("**Monthly update: how the file joins the kept history**")
+        st.dataframe(merge, hide_index=True, key="merge_report_view")
 
 st.markdown("**Recognised columns**")
 st.dataframe(state.mapping_table(load), hide_index=True, key="mapping_view")
