@@ -318,29 +318,31 @@ def _run_chunk(p: dict) -> dict:
     M = max(int(n_k.max()), 1)
     bnd = _mi_to_day(p["start_mi"][:, None] + np.arange(M + 1)[None, :]).astype(float)  # (k, M+1)
     bnd[:, 0] = p["start_day"]
-    tb = (np.minimum(bnd[:, None, :], end_day[:, :, None]) - fsd[:, :, None]) / DAYS_PER_YEAR
-    tb = np.maximum(tb, t0[:, :, None])
-    npc = _mh_cum_unchecked(tb, qi[:, :, None], di[:, :, None], b[:, :, None], dl[:, :, None])
-    vol = np.maximum(np.diff(npc, axis=2), 0.0) * p["uptime"][:, None, None]
-    vol[below] = 0.0
+    # months on axis 1, samples last (contiguous for the percentiles over samples)
+    tb = (np.minimum(bnd[:, :, None], end_day[:, None, :]) - fsd[:, :, None]) / DAYS_PER_YEAR
+    np.maximum(tb, t0[:, None, :], out=tb)
+    npc = _mh_cum_unchecked(tb, qi[:, None, :], di[:, None, :], b[:, None, :], dl[:, None, :])
+    vol = np.diff(npc, axis=1)  # (k, M, S)
+    np.maximum(vol, 0.0, out=vol)
+    vol *= (p["uptime"][:, None] * ~below)[:, None, :]
     if p["future_noise"]:
         for i in range(k):
-            e = resid[i, fut_idx[i][:, :M]]
+            e = resid[i, fut_idx[i][:, :M].T]  # (M, S)
             vol[i] *= np.exp(e) / e_mean[i]
-    vol = np.where(np.isfinite(vol), vol, 0.0)
-    rem = vol.sum(axis=2)
+    vol[~np.isfinite(vol)] = 0.0
+    rem = vol.sum(axis=1)
     el = np.where(reach, end_mi.astype(float), np.where(below, p["last_mi"][:, None].astype(float), np.inf))
-    pct = np.percentile(vol, [PERCENTILE_OF["p90"], PERCENTILE_OF["p50"], PERCENTILE_OF["p10"]], axis=1)
+    pct = np.percentile(vol, [PERCENTILE_OF["p90"], PERCENTILE_OF["p50"], PERCENTILE_OF["p10"]], axis=2)
     # field months of this chunk: per-sample sums over its wells on a shared month grid
     c0 = int(p["start_mi"].min())
     span = int(p["start_mi"].max()) - c0 + M
     fv = np.zeros((S, span))
     for i in range(k):
         off = int(p["start_mi"][i]) - c0
-        fv[:, off:off + M] += vol[i]
+        fv[:, off:off + M] += vol[i].T
     out = {"rem": rem, "el": el, "pct": pct, "M": M, "field_vol": fv, "field_start": c0}
     if p["cum_months"]:
-        out["cum_n"] = vol[:, :, :int(p["cum_months"])].sum(axis=2)
+        out["cum_n"] = vol[:, :int(p["cum_months"]), :].sum(axis=1)
     return out
 
 
