@@ -61,10 +61,10 @@ References
    observations," Annals of Statistics 17(3), 1217-1241, 1989.
 .. [2] Y. Cheng, Y. Wang, D. A. McVay and W. J. Lee, "Practical application of a
    probabilistic approach to estimate reserves using production decline data,"
-   SPE Reservoir Evaluation & Engineering 13(5), 2010 (SPE-95974; journal details from
-   memory).
+   SPE Economics & Management 2(1), 19-31, 2010, SPE-95974-PA.
 .. [3] V. A. Jochen and J. P. Spivey, "Probabilistic reserves estimation using decline
-   curve analysis with the bootstrap method," SPE-36633, 1996 (paper number from memory).
+   curve analysis with the bootstrap method," SPE Annual Technical Conference, 1996
+   (from memory; paper number not verified).
 .. [4] P. Hall, J. L. Horowitz and B.-Y. Jing, "On blocking rules for the bootstrap with
    dependent data," Biometrika 82(3), 561-574, 1995 (from memory).
 """
@@ -546,7 +546,6 @@ def probabilistic_field(
         el[wc] = r["el"]
         if cum_months:
             cum_n[wc] = r["cum_n"]
-        M = r["M"]
         pct = r["pct"]  # (3, k, M)
         for i, wi in enumerate(wc):
             nz = np.flatnonzero(pct[2, i] > 0)
