@@ -728,6 +728,7 @@ def _analyse(months: pd.DataFrame, surveys: pd.DataFrame, cumtab: pd.DataFrame, 
         mb_bp = _x_to_month(ncum * mb["r_b"], cumtab)
         mb_s2 = _x_to_month(ncum * mb["r_s2"], cumtab)
         mb_pk = _x_to_month(ncum * mb["r_pk"], cumtab)
+        bp_pre, bp_src_pre = bp_mi.copy(), bp_src.copy()
         bp_mi = np.where(mb_ok & (mb_stage >= 2), mb_bp, bp_mi)
         bp_src = np.where(mb_ok & (mb_stage >= 2) & np.isfinite(mb_bp), "material-balance GOR match (" + mb["label"].astype(str) + ")",
                           bp_src).astype(object)
@@ -748,6 +749,15 @@ def _analyse(months: pd.DataFrame, surveys: pd.DataFrame, cumtab: pd.DataFrame, 
     la = _x_to_month(cross["x_last_above"], cumtab)
     fb = _x_to_month(cross["x_first_below"], cumtab)
     has_fb = np.isfinite(cross["x_first_below"].to_numpy(float))
+    # a material-balance match that puts the crossing before a survey still above Pb
+    # by more than MB_SURVEY_TOL_MONTHS contradicts a direct measurement: the match is dropped
+    if mb is not None:
+        mb_conflict = mb_ok & (mb_stage >= 2) & np.isfinite(la) & np.isfinite(mb_bp) & (la >= mb_bp + MB_SURVEY_TOL_MONTHS) & ~below_init
+        mb_ok = mb_ok & ~mb_conflict
+        bp_mi = np.where(mb_conflict, bp_pre, bp_mi)
+        bp_src = np.where(mb_conflict, bp_src_pre, bp_src).astype(object)
+    else:
+        mb_conflict = np.zeros(ns, bool)
     bracket = np.isfinite(c_mi) & has_fb
     forward = np.isfinite(c_mi) & ~has_fb
     # order: initial pressure < Pb  >  bracketed surveys  >  GOR  >  forward extrapolation
@@ -830,6 +840,9 @@ def _analyse(months: pd.DataFrame, surveys: pd.DataFrame, cumtab: pd.DataFrame, 
                                                   + np.char.mod("%.2f", np.nan_to_num(mb["scale"])).astype(object)
                                                   + " vs noise " + np.char.mod("%.2f", sigma).astype(object)
                                                   + "): GOR-only rules", "")))
+    if mb is not None and mb_conflict.any():
+        res.loc[sids[mb_conflict], "mb_note"] = ("material-balance GOR match not used: it puts the "
+                                                 "crossing before a survey still above Pb")
     res["n_surveys"] = res["n_surveys"].fillna(0)
     return res
 
@@ -847,6 +860,8 @@ MB_SWC_GRID = (0.18, 0.24)
 #: one Tarner run per Corey set).
 MB_GROUP_STEP = (1.0, 0.02, 5.0, 50.0, 100.0)
 MB_MAX_GROUPS = 12
+#: A survey above Pb this many months after the matched crossing rejects the match.
+MB_SURVEY_TOL_MONTHS = 6
 #: Wells (most producing months first) used to choose the Corey set of a group.
 MB_SELECT_WELLS = 20
 #: Recovery-factor grid (coarse, log-spaced) and refinement points.
