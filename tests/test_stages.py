@@ -410,3 +410,18 @@ def test_duplicate_well_months_are_summed_not_lost():
     half = t.iloc[[10]].assign(oil_bbl=t["oil_bbl"].iloc[10] / 2, gas_mcf=t["gas_mcf"].iloc[10] / 2)
     t2 = pd.concat([t.drop(index=10), half, half], ignore_index=True)
     assert _row(track_wells(t2, None, None), "D-1")["stage"] == _row(track_wells(t, None, None), "D-1")["stage"] == 1
+
+
+def test_surveys_far_above_bubble_point_keep_a_noisy_well_in_stage_1():
+    # Full PVT header (material-balance match active), flat GOR with a noisy upturn at the
+    # end, surveys 1,300-2,000 psi above Pb: stage 1 (check-values 5.3: stage 1 is p > Pb).
+    n = 36
+    gor = _noisy(np.full(n, 570.0), 0.08, 14)
+    gor[-4:] *= 1.15
+    p = np.full(n, np.nan)
+    p[[10, 22, 35]] = [4110.0, 3740.0, 3365.0]
+    wells = pd.DataFrame({"well_id": ["U-1"], "api_gravity": [38.0], "gas_specific_gravity": [0.8],
+                          "reservoir_temp_f": [190.0], "initial_pressure_psia": [4300.0],
+                          "bubble_point_psia": [2100.0]})
+    r = _row(track_wells(_table("U-1", gor, pressure=p), wells, None), "U-1")
+    assert r["stage"] == 1 and r["planning_status"] == "window_ahead"
