@@ -210,6 +210,9 @@ def _call_loader(src: Source, mapping: dict, units: str, unit_column: str | None
     """Call ``core.production.load_production`` on the session's files (bytes in memory)."""
     from core.production import load_production
 
+    extra = {}
+    if src.header_content is not None and "well_header_name" in inspect.signature(load_production).parameters:
+        extra["well_header_name"] = src.header_name
     return load_production(
         src.content,
         file_name=src.name,
@@ -219,6 +222,7 @@ def _call_loader(src: Source, mapping: dict, units: str, unit_column: str | None
         well_header=src.header_content,
         pressure_kind=pressure_kind,
         max_bytes=int(upload_limit_mb() * 1024 * 1024),
+        **extra,
     )
 
 

@@ -119,8 +119,5 @@ if state.is_confirmed():
     st.success("The forecast for these data is computed.")
     st.page_link("pages/overview.py", label="Open the field overview", icon=":material/dashboard:")
 else:
-    if st.button("Compute the forecast", type="primary", key="run_forecast"):
-        state.confirm_current_load()
-        state.require_run()
-        st.success("The forecast for these data is computed.")
-        st.page_link("pages/overview.py", label="Open the field overview", icon=":material/dashboard:")
+    # The callback confirms before the rerun, so this run already draws the computed state.
+    st.button("Compute the forecast", type="primary", key="run_forecast", on_click=state.confirm_current_load)

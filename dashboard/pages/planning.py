@@ -29,7 +29,9 @@ if names:
     c[2].metric("Months since bubble point", state.number_text(row.get("months_since_bubble_point"), "{:.0f}"))
     c[3].metric("Est. months to GOR peak", state.number_text(row.get("months_to_gor_peak_est"), "{:.0f}"))
     c[4].metric("Wells", f"{int(row['n_wells'])}")
-    match = state.unit_history_match(unit)
+    oil_unit = row.get("planning_status") != "not_applicable"
+    match = state.unit_history_match(unit) if oil_unit else {
+        "error": "not a solution-gas-drive oil unit (gas or condensate wells, or stage unknown)"}
     expected = match.get("expected") if match else None
     st.plotly_chart(
         charts.gor_pressure_figure(

@@ -29,7 +29,7 @@ c[3].metric("Stage", state.stage_text(row))
 c = st.columns(4)
 c[0].metric("EUR oil", "" if pd.isna(row["eur_oil_bbl"]) else f"{row['eur_oil_bbl']:,.0f} bbl")
 c[1].metric("Remaining oil", "" if pd.isna(row["remaining_oil_bbl"]) else f"{row['remaining_oil_bbl']:,.0f} bbl")
-c[2].metric("Economic-limit month", state.month_text(row["econ_limit_date"]))
+c[2].metric("Economic-limit month", state.month_text(row["econ_limit_date"]) or "n/a")
 c[3].metric("Cumulative oil", "" if pd.isna(row["cum_oil_bbl"]) else f"{row['cum_oil_bbl']:,.0f} bbl")
 st.caption(
     f"Unit {row['unit']} · fluid {row['fluid_type']} · planning status "
