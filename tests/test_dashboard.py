@@ -343,3 +343,20 @@ def test_monthly_update_appends_to_the_kept_history_and_reopens(sample_run, earl
     assert _metric(at, "EUR oil") == _bbl(expected.wells["eur_oil_bbl"].sum())
     s = _metric(at, "EUR change")
     assert s.endswith(" bbl")
+
+
+def test_every_loader_corpus_file_through_the_page_gives_a_report_or_one_message():
+    # The loader's corpus of messy and hostile files (tests/data/loader, made by us): through
+    # the page, each is either read (rows read = used + rejected shown) or refused with one
+    # clear message naming the file; never a traceback.
+    corpus = sorted((ROOT / "tests" / "data" / "loader").glob("*.*"))
+    assert corpus
+    at = _app()
+    for path in corpus:
+        at.file_uploader(key="upload_production").set_value((path.name, path.read_bytes(), "text/csv")).run()
+        assert not at.exception, (path.name, [e.value for e in at.exception])
+        if at.error:
+            assert len(at.error) == 1 and path.name in at.error[0].value, (path.name, [e.value for e in at.error])
+        else:
+            read, used, rejected = (int(_metric(at, k).replace(",", "")) for k in ("Rows read", "Rows used", "Rows rejected"))
+            assert read == used + rejected, path.name

@@ -17,12 +17,12 @@ limit = state.upload_limit_mb()
 left, right = st.columns(2)
 with left:
     prod = st.file_uploader(
-        "Production file", type=["csv", "txt", "tsv", "xlsx"], key="upload_production",
+        "Production file", type=["csv", "txt", "tsv", "xlsx", "xls"], key="upload_production",
         help=f"CSV (comma, semicolon or tab) or XLSX, up to {limit:g} MB.",
     )
 with right:
     header = st.file_uploader(
-        "Well-header file (optional)", type=["csv", "txt", "tsv", "xlsx"], key="upload_header",
+        "Well-header file (optional)", type=["csv", "txt", "tsv", "xlsx", "xls"], key="upload_header",
         help="One row per well: unit, API gravity, gas gravity, reservoir temperature, "
         "initial pressure, bubble point.",
     )
