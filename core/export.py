@@ -86,11 +86,24 @@ def neutralise_text(value: str) -> str:
     return value
 
 
+def _categorical(codes: np.ndarray, labels: list[str], index: pd.Index) -> pd.Series:
+    """Text column as a categorical from per-row codes (-1 = blank) into ``labels``.
+
+    Distinct values may share a label after formatting (e.g. two spellings of one month);
+    the categories are made unique, blank ("") included.
+    """
+    lab = np.array(list(labels) + [""], dtype=object)
+    lab_codes, lab_uniq = pd.factorize(lab)
+    codes = np.asarray(codes)
+    row_codes = lab_codes[np.where(codes < 0, len(lab) - 1, codes)]
+    cat = pd.Categorical.from_codes(row_codes, categories=pd.Index(np.asarray(lab_uniq, dtype=object), dtype=object))
+    return pd.Series(cat, index=index)
+
+
 def _text_column(s: pd.Series) -> pd.Series:
-    """Object column of neutralised text; NA -> ""; works on the unique values only (fast)."""
+    """Neutralised text (categorical); NA -> ""; formats the unique values only (fast)."""
     codes, uniques = pd.factorize(s, use_na_sentinel=True)
-    labels = np.array([neutralise_text(_cell_text(u)) for u in uniques] + [""], dtype=object)
-    return pd.Series(labels[codes], index=s.index, dtype=object)  # code -1 -> last label ""
+    return _categorical(codes, [neutralise_text(_cell_text(u)) for u in uniques], s.index)
 
 
 def _cell_text(u: Any) -> str:
@@ -105,19 +118,16 @@ def _cell_text(u: Any) -> str:
 
 def _month_column(s: pd.Series) -> pd.Series:
     codes, uniques = pd.factorize(s, use_na_sentinel=True)
-    labels = np.array(list(pd.DatetimeIndex(uniques).strftime("%Y-%m")) + [""], dtype=object)
-    return pd.Series(labels[codes], index=s.index, dtype=object)
+    return _categorical(codes, list(pd.DatetimeIndex(uniques).strftime("%Y-%m")), s.index)
 
 
 def _bool_column(s: pd.Series) -> pd.Series:
-    out = np.full(len(s), "", dtype=object)
-    vals = s.to_numpy(dtype=object)
     known = ~pd.isna(s).to_numpy()
+    vals = s.to_numpy(dtype=object)
     truth = np.zeros(len(s), dtype=bool)
     truth[known] = vals[known].astype(bool)
-    out[known & truth] = "true"
-    out[known & ~truth] = "false"
-    return pd.Series(out, index=s.index, dtype=object)
+    codes = np.where(known, np.where(truth, 0, 1), -1)
+    return _categorical(codes, ["true", "false"], s.index)
 
 
 def prepare_table(table: pd.DataFrame) -> pd.DataFrame:
@@ -125,7 +135,8 @@ def prepare_table(table: pd.DataFrame) -> pd.DataFrame:
 
     Numbers stay numbers (float with NaN where the cell is blank; NaN/inf become NaN), dates
     become ``YYYY-MM`` text, booleans ``true``/``false``, and text is neutralised against
-    formula execution. The input is not modified.
+    formula execution. Every text column comes back as a categorical of str ("" = blank), so
+    the writers handle each distinct value once. The input is not modified.
     """
     out = {}
     for name in table.columns:
@@ -158,6 +169,21 @@ def prepare_table(table: pd.DataFrame) -> pd.DataFrame:
 _CSV_CHUNK_ROWS = 500_000
 
 
+def _arrow_column(s: pd.Series) -> Any:
+    """Arrow array of a prepared column: text by taking its categories (no per-row objects)."""
+    import pyarrow as pa
+    import pyarrow.compute as pc
+
+    if isinstance(s.dtype, pd.CategoricalDtype):
+        cats = pa.array(np.asarray(s.cat.categories, dtype=object), type=pa.string())
+        return pc.take(cats, pa.array(s.cat.codes.to_numpy(dtype=np.int32)))
+    if isinstance(s.dtype, pd.Int64Dtype):
+        return pa.array(s, type=pa.int64(), from_pandas=True)
+    if pd.api.types.is_integer_dtype(s.dtype):
+        return pa.array(s.to_numpy(dtype=np.int64))
+    return pa.array(s.to_numpy(dtype=float, na_value=np.nan), from_pandas=True)  # NaN -> null
+
+
 def _csv_chunk_bytes(part: pd.DataFrame, header: bool) -> bytes:
     """UTF-8 CSV bytes of an already prepared table (Arrow's C++ writer when available)."""
     try:
@@ -166,7 +192,10 @@ def _csv_chunk_bytes(part: pd.DataFrame, header: bool) -> bytes:
     except ImportError:  # pragma: no cover - pyarrow ships with pandas/streamlit here
         return part.to_csv(index=False, header=header, na_rep="", lineterminator="\n").encode("utf-8")
     buf = io.BytesIO()
-    table = pa.Table.from_pandas(part, preserve_index=False)
+    names = [str(c) for c in part.columns]
+    table = pa.Table.from_arrays([_arrow_column(part[c]) for c in part.columns], names=names)
+    if header:  # header cells follow the same neutralisation rule
+        table = table.rename_columns([neutralise_text(n) for n in names])
     pacsv.write_csv(table, buf, pacsv.WriteOptions(include_header=header, quoting_style="needed"))
     return buf.getvalue()
 
@@ -246,48 +275,52 @@ def tables_to_csv_bytes(result: Any, *, wells: Iterable[str] | None = None) -> d
 # --------------------------------------------------------------------------------------------
 # yearly summary for the workbook
 # --------------------------------------------------------------------------------------------
+YEARLY_COLUMNS = ["well_id", "year", "kind", "months", "oil_bbl", "gas_mcf", "water_bbl", "cum_oil_bbl"]
+
+
 def yearly_volumes(monthly: pd.DataFrame) -> pd.DataFrame:
     """Volumes per well, calendar year and kind (actual / forecast) from the monthly table.
 
     Columns: ``well_id``, ``year``, ``kind``, ``months``, ``oil_bbl``, ``gas_mcf``,
     ``water_bbl``, ``cum_oil_bbl`` (cumulative oil at the end of the last month of the group).
-    Sums skip blank months (a stream with no value at all in the group stays blank).
+    Sums skip blank months (a stream with no value at all in the group stays blank). Groups
+    come in the order of the monthly table (well, then month); vectorised with numpy
+    (``reduceat`` over runs of equal keys).
     """
-    if monthly.empty:
-        return pd.DataFrame(
-            columns=["well_id", "year", "kind", "months", "oil_bbl", "gas_mcf", "water_bbl", "cum_oil_bbl"]
-        )
-    year = pd.DatetimeIndex(monthly["month"]).year.to_numpy()
-    df = pd.DataFrame(
-        {
-            "well_id": monthly["well_id"].to_numpy(),
-            "year": year,
-            "kind": monthly["kind"].astype(str).to_numpy(),
-            "oil_bbl": monthly["oil_bbl"].to_numpy(dtype=float),
-            "gas_mcf": monthly["gas_mcf"].to_numpy(dtype=float),
-            "water_bbl": monthly["water_bbl"].to_numpy(dtype=float),
-            "cum_oil_bbl": monthly["cum_oil_bbl"].to_numpy(dtype=float),
-        }
-    )
-    g = df.groupby(["well_id", "year", "kind"], sort=False, observed=True)
-    out = g.agg(
-        months=("oil_bbl", "size"),
-        oil_bbl=("oil_bbl", lambda s: s.sum(min_count=1)),
-        gas_mcf=("gas_mcf", lambda s: s.sum(min_count=1)),
-        water_bbl=("water_bbl", lambda s: s.sum(min_count=1)),
-        cum_oil_bbl=("cum_oil_bbl", "last"),
-    ) if len(df) < 50_000 else _fast_yearly(df, g)
-    out = out.reset_index()
-    return out[["well_id", "year", "kind", "months", "oil_bbl", "gas_mcf", "water_bbl", "cum_oil_bbl"]]
+    n = len(monthly)
+    if n == 0:
+        return pd.DataFrame({c: [] for c in YEARLY_COLUMNS})
+    w_codes, w_uniq = pd.factorize(monthly["well_id"])
+    k_codes, k_uniq = pd.factorize(monthly["kind"].astype(str))
+    year = pd.DatetimeIndex(monthly["month"]).year.to_numpy().astype(np.int64)
+    order = np.lexsort((pd.DatetimeIndex(monthly["month"]).asi8, w_codes))
+    if not np.array_equal(order, np.arange(n)):  # not sorted by well and month: sort first
+        w_codes, k_codes, year = w_codes[order], k_codes[order], year[order]
+    else:
+        order = None
+    change = np.ones(n, dtype=bool)
+    change[1:] = (w_codes[1:] != w_codes[:-1]) | (year[1:] != year[:-1]) | (k_codes[1:] != k_codes[:-1])
+    starts = np.flatnonzero(change)
+    ends = np.r_[starts[1:], n] - 1
 
+    def values(name: str) -> np.ndarray:
+        v = monthly[name].to_numpy(dtype=float, na_value=np.nan)
+        return v if order is None else v[order]
 
-def _fast_yearly(df: pd.DataFrame, g: Any) -> pd.DataFrame:
-    # Same result as the lambda aggregation, built from built-in (vectorised) reductions.
-    sums = g[["oil_bbl", "gas_mcf", "water_bbl"]].sum(min_count=1)
-    out = pd.DataFrame({"months": g.size()})
-    out[["oil_bbl", "gas_mcf", "water_bbl"]] = sums
-    out["cum_oil_bbl"] = g["cum_oil_bbl"].last()
-    return out
+    out = {
+        "well_id": np.asarray(w_uniq, dtype=object)[w_codes[starts]],
+        "year": year[starts],
+        "kind": np.asarray(k_uniq, dtype=object)[k_codes[starts]],
+        "months": np.diff(np.r_[starts, n]),
+    }
+    for name in ("oil_bbl", "gas_mcf", "water_bbl"):
+        v = values(name)
+        known = np.isfinite(v)
+        total = np.add.reduceat(np.where(known, v, 0.0), starts)
+        count = np.add.reduceat(known.astype(np.int64), starts)
+        out[name] = np.where(count > 0, total, np.nan)
+    out["cum_oil_bbl"] = values("cum_oil_bbl")[ends]
+    return pd.DataFrame(out, columns=YEARLY_COLUMNS)
 
 
 # --------------------------------------------------------------------------------------------
@@ -303,12 +336,14 @@ def _cover_rows(result: Any, notes: list[str]) -> list[tuple[str, Any]]:
     summary = getattr(result, "summary", None) or {}
     for key, value in summary.items():
         if isinstance(value, Mapping):
-            value = "; ".join(f"{k}: {v}" for k, v in value.items())
+            value = "; ".join(f"{k}: {v}" for k, v in value.items()) or "none"
         rows.append((f"summary: {key}", value))
     settings = getattr(result, "settings", None)
     if settings is not None:
         items = settings.as_dict() if hasattr(settings, "as_dict") else dict(vars(settings))
         for key, value in items.items():
+            if key == "as_of" and value is None:
+                value = "the last month in the data"
             rows.append((f"input: {key}", "" if value is None else value))
     inputs = getattr(result, "inputs", None) or {}
     for key, value in inputs.items():
@@ -427,14 +462,16 @@ def _rows_xml(prepared: pd.DataFrame, first_row: int) -> bytes:
     for j, name in enumerate(prepared.columns):
         ref = _col_letter(j)
         s = prepared[name]
-        if s.dtype == object:
-            x = _arrow_text_xml(s.to_numpy())
+        if isinstance(s.dtype, pd.CategoricalDtype):
+            # escape each distinct text once, then take per row
+            x_cats = _arrow_text_xml(np.asarray(s.cat.categories, dtype=object))
+            x = pc.take(x_cats, pa.array(s.cat.codes.to_numpy(dtype=np.int32)))
             cell = pc.binary_join_element_wise(
                 '<c r="', ref, rownum, '" t="inlineStr"><is><t xml:space="preserve">', x, "</t></is></c>", "",
                 null_handling="emit_null",
             )
         else:
-            v = pa.array(s.to_numpy(dtype=float, na_value=np.nan), from_pandas=True)  # NaN -> null
+            v = _arrow_column(s)
             cell = pc.binary_join_element_wise(
                 '<c r="', ref, rownum, '"><v>', pc.cast(v, pa.string()), "</v></c>", "", null_handling="emit_null"
             )
@@ -490,7 +527,8 @@ def _write_cover_sheet(fh: Any, rows: list[tuple[str, Any]]) -> None:
                 cells += (f'<c r="B{r}" s="{_STYLE_WRAP}" t="inlineStr"><is><t xml:space="preserve">'
                           f"{_xml_escape_text(v)}</t></is></c>")
         else:
-            cells += f'<c r="B{r}" s="{_STYLE_WRAP}"><v>{float(v)!r}</v></c>'
+            num = int(v) if float(v).is_integer() and abs(v) < 2**53 else float(v)
+            cells += f'<c r="B{r}" s="{_STYLE_WRAP}"><v>{num!r}</v></c>'
         out.append(f'<row r="{r}">{cells}</row>')
     out.append(_SHEET_CLOSE)
     fh.write("".join(out).encode("utf-8"))

@@ -204,25 +204,33 @@ def test_yearly_volumes_split_by_kind_and_keep_blank_streams():
     assert w1["cum_oil_bbl"].tolist() == [1200.0, 2400.0]
 
 
-def test_yearly_volumes_fast_path_matches_small_path():
-    # regression between the two aggregation paths (our own code on both sides)
+def test_yearly_volumes_match_a_pandas_groupby():
+    # reference: pandas groupby sums (min_count=1, blank when no month is known) and last values
     rng = np.random.default_rng(3)
-    n = 60_000
+    n_w, per = 50, 120
+    n = n_w * per
     m = pd.DataFrame(
         {
-            "well_id": np.repeat([f"W{i}" for i in range(n // 120)], 120),
-            "month": np.tile(pd.date_range("2000-01-01", periods=120, freq="MS"), n // 120),
-            "kind": np.tile(["actual"] * 60 + ["forecast"] * 60, n // 120),
+            "well_id": np.repeat([f"W{i:03d}" for i in range(n_w)], per),
+            "month": np.tile(pd.date_range("2000-07-01", periods=per, freq="MS"), n_w),
+            "kind": np.tile(["actual"] * 60 + ["forecast"] * 60, n_w),
             "oil_bbl": rng.random(n),
-            "gas_mcf": np.where(rng.random(n) < 0.1, np.nan, rng.random(n)),
-            "water_bbl": rng.random(n),
+            "gas_mcf": np.where(rng.random(n) < 0.3, np.nan, rng.random(n)),
+            "water_bbl": np.nan,
             "oil_rate_bopd": rng.random(n),
             "cum_oil_bbl": rng.random(n),
         }
     )
-    big = yearly_volumes(m)
-    small = pd.concat([yearly_volumes(m.iloc[i : i + 12_000]) for i in range(0, n, 12_000)], ignore_index=True)
-    pd.testing.assert_frame_equal(big.reset_index(drop=True), small, check_dtype=False)
+    got = yearly_volumes(m.sample(frac=1.0, random_state=1))  # any row order
+    ref = m.assign(year=m["month"].dt.year).groupby(["well_id", "year", "kind"], sort=True).agg(
+        months=("oil_bbl", "size"),
+        oil_bbl=("oil_bbl", lambda s: s.sum(min_count=1)),
+        gas_mcf=("gas_mcf", lambda s: s.sum(min_count=1)),
+        water_bbl=("water_bbl", lambda s: s.sum(min_count=1)),
+        cum_oil_bbl=("cum_oil_bbl", "last"),
+    ).reset_index()
+    got = got.sort_values(["well_id", "year", "kind"], ignore_index=True)
+    pd.testing.assert_frame_equal(got, ref[got.columns], check_dtype=False, rtol=1e-12)
 
 
 def test_write_outputs_writes_every_file(tmp_path):
