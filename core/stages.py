@@ -431,7 +431,7 @@ def _prepare(production: pd.DataFrame, sid_col: str):
     p = col("pressure_psia")
     okp = np.isfinite(p) & (p > 0)
     surveys = pd.DataFrame({"sid": sid_s[okp], "mi": mi_s[okp], "p": p[okp], "x": (cum_end - 0.5 * oil0)[okp]})
-    ends = np.r_[starts[1:], n] - 1
+    ends = np.r_[starts[1:], n] - 1 if n else np.zeros(0, np.int64)
     gas_known = np.logical_or.reduceat(np.isfinite(gas), starts) if n else np.zeros(0, bool)
     n_gor = np.add.reduceat(good.astype(np.int64), starts) if n else np.zeros(0, np.int64)
     counts = pd.DataFrame({"first_mi": mi_s[starts], "last_mi": mi_s[ends], "gas_known": gas_known,

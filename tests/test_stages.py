@@ -425,3 +425,14 @@ def test_surveys_far_above_bubble_point_keep_a_noisy_well_in_stage_1():
                           "bubble_point_psia": [2100.0]})
     r = _row(track_wells(_table("U-1", gor, pressure=p), wells, None), "U-1")
     assert r["stage"] == 1 and r["planning_status"] == "window_ahead"
+
+
+def test_unit_without_applicable_wells_is_not_applicable():
+    # Regression (empty unit series once crashed): a unit holding only a gas-condensate well.
+    prod = pd.concat([_table("GC-9", np.full(30, 14000.0), unit="Gas Unit"),
+                      _table("OIL-9", _noisy(np.full(30, 600.0), 0.05, 15), unit="Oil Unit")], ignore_index=True)
+    fluids = pd.DataFrame({"well_id": ["GC-9", "OIL-9"], "fluid_type": ["gas_condensate", "black_oil"]})
+    ws = track_wells(prod, None, fluids)
+    u = track_units(prod, ws, None).set_index("unit")
+    assert pd.isna(u.loc["Gas Unit", "stage"]) and u.loc["Gas Unit", "planning_status"] == "not_applicable"
+    assert u.loc["Oil Unit", "stage"] == 1
