@@ -436,3 +436,7 @@ def test_unit_without_applicable_wells_is_not_applicable():
     u = track_units(prod, ws, None).set_index("unit")
     assert pd.isna(u.loc["Gas Unit", "stage"]) and u.loc["Gas Unit", "planning_status"] == "not_applicable"
     assert u.loc["Oil Unit", "stage"] == 1
+    # the whole field without an applicable well: empty unit series
+    gc = prod[prod["well_id"] == "GC-9"]
+    u2 = track_units(gc, track_wells(gc, None, fluids), None)
+    assert len(u2) == 1 and pd.isna(u2["stage"].iloc[0])
