@@ -95,7 +95,7 @@ PLANNING_LABELS = {
 _LAYOUT = dict(
     paper_bgcolor="white",
     plot_bgcolor="white",
-    margin=dict(l=60, r=20, t=50, b=40),
+    margin=dict(l=60, r=20, t=80, b=40),
     legend=dict(orientation="h", yanchor="bottom", y=1.02, xanchor="left", x=0.0),
     hovermode="x unified",
     font=dict(size=12),
@@ -381,6 +381,7 @@ def stage_share_figure(units: pd.DataFrame, *, title: str = "Wells by stage in e
                   marker=dict(color=PALETTE["stage"][stage], line=dict(color="#333333", width=0.5)),
                   hovertemplate="%{y}: %{x:.0%}<extra>" + name + "</extra>")
     return fig.build(title, barmode="stack", hovermode="closest",
+                     legend=dict(orientation="h", yanchor="top", y=-0.18, xanchor="left", x=0.0),
                      xaxis=dict(title=dict(text="share of wells"), tickformat=".0%", range=[0, 1]),
                      yaxis=dict(automargin=True))
 

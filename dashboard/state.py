@@ -781,29 +781,49 @@ def _field_totals(key: str, _run) -> pd.DataFrame:
     return pd.concat([actual, forecast], ignore_index=True)
 
 
+@st.cache_resource(show_spinner=False)
+def _indices() -> _LRU:
+    return _LRU(24)
+
+
+def _well_slice(frame: pd.DataFrame, key: str, well_id: str) -> pd.DataFrame:
+    """Rows of ``frame`` for one well through a per-table index of row positions (built once
+    per table, then a lookup: switching wells does not scan the field's tables)."""
+    cache = _indices()
+    index = cache.get(key)
+    if index is None:
+        ids = frame["well_id"]
+        index = {str(k): v for k, v in ids.groupby(ids, sort=False, observed=True).indices.items()}
+        cache.put(key, index)
+    pos = index.get(str(well_id))
+    return frame.iloc[pos] if pos is not None else frame.iloc[0:0]
+
+
+def _run_table_key(run, name: str) -> str:
+    return f"{id(run)}|{name}|{run_key()}"
+
+
 def well_row(run, well_id: str) -> pd.Series:
-    w = run.wells
-    return w.loc[w["well_id"].astype(str) == str(well_id)].iloc[0]
+    return _well_slice(run.wells, _run_table_key(run, "wells"), well_id).iloc[0]
 
 
 def well_history(well_id: str) -> pd.DataFrame:
     """The well's rows of the tidy monthly table (as loaded)."""
-    p = current_load().production
-    return p.loc[p["well_id"].astype(str) == str(well_id)]
+    load = current_load()
+    return _well_slice(load.production, f"{id(load)}|production|{load_key()}", well_id)
 
 
 def well_forecast(run, well_id: str) -> pd.DataFrame:
     """The well's forecast months: ``month``, ``rate`` [bbl/d], ``cum_oil_bbl``, ``oil_bbl``."""
-    m = run.monthly
-    f = m.loc[(m["well_id"].astype(str) == str(well_id)) & (m["kind"] == "forecast")]
-    return f.rename(columns={"oil_rate_bopd": "rate"})
+    m = _well_slice(run.monthly, _run_table_key(run, "monthly"), well_id)
+    return m.loc[m["kind"] == "forecast"].rename(columns={"oil_rate_bopd": "rate"})
 
 
 def well_candidates(run, well_id: str) -> pd.DataFrame:
     c = run.candidates
     if c is None or c.empty or "well_id" not in c:
         return pd.DataFrame()
-    return c.loc[c["well_id"].astype(str) == str(well_id)].reset_index(drop=True)
+    return _well_slice(c, _run_table_key(run, "candidates"), well_id).reset_index(drop=True)
 
 
 def fitted_curve(run, well_id: str, stream: str = "oil") -> pd.DataFrame:
