@@ -329,3 +329,19 @@ def test_command_on_an_xlsx_input_with_a_named_sheet(tmp_path, field_files, resu
     err = io.StringIO()
     assert main(base + ["--out", str(tmp_path / "p"), "--sheet", "Nope"], stdout=io.StringIO(), stderr=err) == 2
     assert "Nope" in err.getvalue() and len(err.getvalue().strip().splitlines()) == 1
+
+
+def test_override_is_applied_and_named(field_files, result):
+    from core.decline import WellOverride
+
+    load = load_inputs(field_files["clean"], wells_path=field_files["header"], settings=result.settings)
+    ov = {"SYN-001": WellOverride(b=0.0, reason="regional analogue", author="tester")}
+    res = run_field(load, settings=result.settings, overrides=ov)
+    w = res.wells.set_index("well_id")
+    assert w.loc["SYN-001", "model"] == "exponential" and w.loc["SYN-001", "b"] == 0.0
+    assert "b=0" in w.loc["SYN-001", "override"] and "regional analogue" in w.loc["SYN-001", "override"]
+    others = w.index != "SYN-001"
+    assert (w.loc[others, "override"] == "").all()
+    # the other wells' numbers do not move (fits are per well)
+    base = result.wells.set_index("well_id")
+    pd.testing.assert_series_equal(w.loc[others, "eur_oil_bbl"], base.loc[w.index[others], "eur_oil_bbl"])
