@@ -5,6 +5,7 @@ rows per second. Run on demand: .venv/bin/python benchmarks/bench_loader.py [n_w
 
 from __future__ import annotations
 
+import resource
 import sys
 import tempfile
 import time
@@ -43,12 +44,16 @@ def main(argv: list[str]) -> int:
         t0 = time.perf_counter()
         n = make_file(p, n_wells)
         t1 = time.perf_counter()
+        rss0 = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
         res = load_production(p, as_of="2030-12")
         t2 = time.perf_counter()
+        rss1 = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
         size_mb = p.stat().st_size / 1e6
     print(f"wrote {n:,} rows ({size_mb:.1f} MB) for {n_wells:,} wells in {t1 - t0:.1f} s")
     print(f"load_production: {t2 - t1:.2f} s, {n / (t2 - t1):,.0f} rows/s; rows used {res.rows_used:,}, "
           f"rejected {res.rows_rejected:,}, report lines {len(res.report):,}")
+    print(f"peak resident memory: {rss0:,.0f} MB after writing the file, {rss1:,.0f} MB after loading "
+          f"(high-water mark of the whole process)")
     return 0
 
 

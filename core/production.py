@@ -411,8 +411,8 @@ def _sniff_delimiter(lines: list[str]) -> str:
     return best
 
 
-_RE_EU = re.compile(r"^[+-]?\d+,(\d{1,2}|\d{4,})$|^[+-]?\d{1,3}(\.\d{3})+,\d+$")
-_RE_US = re.compile(r"^[+-]?\d+\.(\d{1,2}|\d{4,})$|^[+-]?\d{1,3}(,\d{3})+\.\d+$")
+_RE_EU = re.compile(r"^[+-]?\d+,(\d{1,2}|\d{4,})$|^[+-]?\d{1,3}(\.\d{3})+,\d+$|^[+-]?\d+,\d+[eE][+-]?\d+$")
+_RE_US = re.compile(r"^[+-]?\d+\.(\d{1,2}|\d{4,})$|^[+-]?\d{1,3}(,\d{3})+\.\d+$|^[+-]?\d+\.\d+[eE][+-]?\d+$")
 
 
 def _decimal_comma(rows: list[list[str]], delim: str) -> bool:
@@ -505,6 +505,8 @@ def _read_csv(raw: bytes, name: str, *, mapping: Mapping[str, str] | None,
               na_values=[""], skip_blank_lines=False, low_memory=False, quotechar='"', nrows=nrows,
               decimal="," if dec else ".")
     body = text if (enc != "utf-8" or cr_fixed) else None
+    tail = text[-MAX_HEADER_BYTES:]
+    del text  # the parser reads the bytes (or body); the rare slow path decodes again
     try:
         if body is None:
             frame = pd.read_csv(io.BytesIO(raw), encoding="utf-8-sig", **kw)
@@ -516,12 +518,15 @@ def _read_csv(raw: bytes, name: str, *, mapping: Mapping[str, str] | None,
         messages.append(f"{name}: rows with extra fields found ({(str(exc).splitlines() or [''])[0][:120]}); "
                         "read row by row")
         try:
-            frame, extra, rownum = _read_csv_slow(text, name, delim, header, hdr, dtype, dec, nrows)
+            full = body if body is not None else raw.decode("utf-8-sig")
+            frame, extra, rownum = _read_csv_slow(full, name, delim, header, hdr, dtype, dec, nrows)
+            del full
         except csv.Error as exc2:
             raise InputError(f"{name}: cannot be read as {delim!r}-delimited text ({exc2})") from None
     # truncated last line: the file does not end with a line break and the last row is short
-    if len(frame) and not text.endswith(("\n", "\r")) and extra is None:
-        last = text[text.rfind("\n") + 1:]
+    del body
+    if len(frame) and not tail.endswith(("\n", "\r")) and extra is None:
+        last = tail[tail.rfind("\n") + 1:]
         flds = next(csv.reader([last], delimiter=delim), [])
         if 0 < len(flds) < len(header):
             trunc = pd.DataFrame({"file": [name], "row": [int(rownum[-1])], "well_id": [flds[0].strip()],
@@ -1340,6 +1345,7 @@ def load_production(
         raw, name = _read_source(source, file_name, max_bytes)
         t = _read_any(raw, name, sheet=sheet, mapping=mapping, max_bytes=max_bytes,
                       text_fields=_text_fields_for(mapping, unit_column))
+        del raw
     messages = list(t.messages)
     f = t.frame
     columns = list(f.columns)
@@ -1547,6 +1553,10 @@ def load_production(
         v, st = _parse_numbers(f[mp[k]], t.decimal_comma)
         sc, off = _conversion(k, mp[k], units, name, messages, unit_row)
         prod[k] = (v * sc + off)[kidx]
+    content_sha256 = t.content_sha256
+    # the raw table is no longer needed: free it before the derived columns (memory on big files)
+    col = ucol = dcol = None
+    del f, t, vals, wcol, mcol, col, ucol, dcol, wid_np, mi, pres, unit, oil, gas, water, days, given
 
     # duplicates
     dupmask = prod.duplicated(["wrank", "month_i"], keep=False).to_numpy()
@@ -1717,6 +1727,7 @@ def load_production(
     cols["days_in_month"] = cols["days_in_month"].astype(np.int64)
     cols["days_on_given"] = cols["days_on_given"].astype(bool)
     production = pd.DataFrame(cols)
+    del cols
     wells = wells[WELL_COLUMNS].reset_index(drop=True)
     wells["well_id"] = wells["well_id"].astype(object)
     wells["unit"] = wells["unit"].astype(object)
@@ -1727,7 +1738,7 @@ def load_production(
     return LoadResult(
         production=production, wells=wells, report=report, mapping=dict(mp), rows_read=int(rows_read),
         rows_used=int(rows_used), rows_rejected=int(rows_read - rows_used), file_name=name,
-        content_sha256=t.content_sha256, pressure_kind=pressure_kind, messages=messages)
+        content_sha256=content_sha256, pressure_kind=pressure_kind, messages=messages)
 
 
 def _ym1(mi: int) -> str:

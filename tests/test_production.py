@@ -417,3 +417,10 @@ def test_units_row_under_the_header():
     assert r["gas_mcf"] == pytest.approx(10_000 / 28.316846592, rel=1e-12)
     assert r["pressure_psia"] == pytest.approx(1000 / 6.894757293168361, rel=1e-12)
     assert any("holds the units" in m for m in res.messages)
+
+
+def test_decimal_comma_with_exponent_only():
+    # found by the round-trip property: pandas writes 1.175494e-38 as "1,175494e-38" with decimal=","
+    raw = b"Well;Month;Oil;Gas\nA0;1990-01;1,175494e-38;2,5e+03\n"
+    res = load_production(raw, file_name="e.csv", as_of=AS_OF)
+    assert list(res.production["oil_bbl"]) == [1.175494e-38] and list(res.production["gas_mcf"]) == [2500.0]
