@@ -176,7 +176,8 @@ def fake_xlsx() -> bytes:
     """A zip archive named .xlsx that holds a text file, not a workbook."""
     buf = io.BytesIO()
     with zipfile.ZipFile(buf, "w") as zf:
-        zf.writestr("notes.txt", "this is not a workbook\n")
+        # fixed timestamp: the file is the same on every run
+        zf.writestr(zipfile.ZipInfo("notes.txt", date_time=(2026, 1, 1, 0, 0, 0)), "this is not a workbook\n")
     return buf.getvalue()
 
 
