@@ -40,14 +40,14 @@ with st.sidebar:
     else:
         st.caption(f"Data: {src.name}" + (f" + {src.header_name}" if src.header_name else ""))
         st.caption("Forecast: " + ("computed" if state.has_run() else "waiting for confirmation on Load data"))
-    s = state.settings()
-    limit = s.get("econ_limit_bopd")
-    st.caption(
-        "Economic limit: "
-        + (f"{limit:g} bbl/d" if limit else ("from prices and costs" if s.get("oil_price") else "default"))
-        + f" · b max {s.get('b_max'):g} · terminal decline {100 * s.get('terminal_decline', 0):.1f} %/yr"
-    )
+    st.caption(state.settings_summary())
     st.caption(f"Overrides and flags: {state.store_status()}")
     st.caption(state.CAUTION)
 
 nav.run()
+
+# Problems met while the page ran (store locked or unreadable, a record kept in this session
+# only): said once, in the sidebar.
+problem = state.pop_problem()
+if problem:
+    st.sidebar.warning(problem)

@@ -609,6 +609,11 @@ def _restore_from_store() -> None:
         ss[LAST_ERROR] = f"overrides could not be read from the store: {exc}"
 
 
+def pop_problem() -> str | None:
+    """The last problem met with the store or a record (then forgotten), or None."""
+    return st.session_state.pop(LAST_ERROR, None)
+
+
 def store_status() -> str:
     store = _store()
     return "session only (the store cannot be opened)" if store is None else f"kept in the store ({store.location})"
@@ -1193,6 +1198,19 @@ def settings_from_form(*, mode: str, econ_limit_bopd: float, oil_price: float, g
         "as_of": as_of.strip() or None,
         "units": units,
     }
+
+
+def terminal_decline_pct() -> float:
+    """The applied terminal decline in %/yr (effective), for the Settings form."""
+    return 100.0 * float(st.session_state[SETTINGS]["terminal_decline"])
+
+
+def settings_summary() -> str:
+    """One line on the settings in force, for the sidebar."""
+    s = st.session_state[SETTINGS]
+    limit = s.get("econ_limit_bopd")
+    how = f"{limit:g} bbl/d" if limit else ("from prices and costs" if s.get("oil_price") else "default")
+    return f"Economic limit: {how} · b max {s.get('b_max'):g} · terminal decline {terminal_decline_pct():.1f} %/yr"
 
 
 def settings_note() -> str:

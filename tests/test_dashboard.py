@@ -360,3 +360,14 @@ def test_every_loader_corpus_file_through_the_page_gives_a_report_or_one_message
         else:
             read, used, rejected = (int(_metric(at, k).replace(",", "")) for k in ("Rows read", "Rows used", "Rows rejected"))
             assert read == used + rejected, path.name
+
+
+def test_an_unusable_store_is_said_once_and_the_app_still_works(tmp_path, monkeypatch):
+    bad = tmp_path / "not_a_store.sqlite"
+    bad.write_bytes(b"this is not a database")
+    monkeypatch.setenv("DEPLETION_DESK_DB", str(bad))
+    at = _app()
+    assert any("cannot be opened" in w.value for w in at.sidebar.warning)
+    at.switch_page("pages/overview.py").run()
+    assert not at.exception
+    assert _metric(at, "Wells")

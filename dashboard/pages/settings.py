@@ -33,7 +33,7 @@ with st.form("settings_form"):
     h, i, j, k = st.columns(4)
     b_max = h.number_input("Maximum b [-]", min_value=0.05, max_value=2.0, value=float(s["b_max"]), step=0.1, key="set_b_max")
     term = i.number_input("Terminal decline, effective [%/yr]", min_value=0.1, max_value=99.0,
-                          value=float(100 * s["terminal_decline"]), step=0.5, key="set_terminal")
+                          value=state.terminal_decline_pct(), step=0.5, key="set_terminal")
     horizon = j.number_input("Forecast horizon cap [yr]", min_value=1.0, max_value=200.0, value=float(s["horizon_years"]),
                              key="set_horizon")
     as_of = k.text_input("As-of month (YYYY-MM, blank = last month in the data)", value=s.get("as_of") or "", key="set_as_of")
