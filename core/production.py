@@ -1352,6 +1352,14 @@ def load_production(
     mp = _resolve_mapping(columns, mapping, name, unit_column)
     missing_req = [k for k in ("well_id", "month", "oil_bbl") if k not in mp]
     if missing_req:
+        try:
+            dp = _parse_dates(pd.Series([str(c) for c in columns], dtype=object), name, "header", False)
+            n_date_cols = int((dp.month_index >= 0).sum())
+        except InputError:
+            n_date_cols = 0
+        if n_date_cols >= 3:
+            raise InputError(f"{name}: {n_date_cols} column headers are months (a wide layout, one column per "
+                             "month); the loader reads the long layout, one row per well and month")
         label = {"well_id": "well identifier", "month": "month/date", "oil_bbl": "oil volume"}
         raise InputError(f"{name}: no recognisable " + " or ".join(label[k] for k in missing_req)
                          + " column; columns are: " + ", ".join(repr(c) for c in columns[:40])

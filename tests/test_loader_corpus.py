@@ -421,3 +421,9 @@ def test_mutated_workbooks_load_or_give_one_clear_message(muts):
         assert str(exc).startswith("mutated.xlsx: ") and "\n" not in str(exc)
         return
     check_accounting(res)
+
+
+def test_wide_layout_named_as_such():
+    csv = b"Well,2021-01,2021-02,2021-03\nA,10,9,8\n"
+    msg = _raises(csv, "wide layout", file_name="wide.csv")
+    assert msg.startswith("wide.csv: 3 column headers are months")
