@@ -175,7 +175,7 @@ def arps_time_to_rate(q: ArrayLike, qi: ArrayLike, di: ArrayLike, b: ArrayLike) 
 
 
 def _time_unchecked(q, qi, di, b):
-    ln_ratio = np.maximum(np.log(qi / q), 0.0)
+    ln_ratio = np.maximum(np.log(qi) - np.log(q), 0.0)
     return _expm1_over(b, ln_ratio) / di
 
 
@@ -290,7 +290,7 @@ def modified_hyperbolic_time_to_rate(
 def _mh_time_unchecked(q, qi, di, b, dl):
     t_sw, t_sw_f, q_sw, _ = _mh_parts(np.zeros(1), qi, di, b, dl)
     t_hyp = _time_unchecked(q, qi, di, b)
-    t_tail = t_sw_f + np.maximum(np.log(q_sw / q), 0.0) / dl
+    t_tail = t_sw_f + np.maximum(np.log(q_sw) - np.log(q), 0.0) / dl
     return np.where(q >= q_sw, t_hyp, t_tail)
 
 
@@ -737,7 +737,7 @@ class DeclineSettings:
     chunk_wells : int
         Wells per batch (memory per batch ~ chunk x months x 100 bytes). Default 4096.
     block_wells : int
-        Wells prepared at a time (bounds the per-row work arrays). Default 25,000.
+        Wells prepared at a time (bounds the per-row work arrays). Default 10,000.
     """
 
     b_max: float = 2.0
@@ -762,7 +762,7 @@ class DeclineSettings:
     max_iter: int = 100
     tol: float = 1e-8
     chunk_wells: int = 4096
-    block_wells: int = 25_000
+    block_wells: int = 10_000
 
     def __post_init__(self) -> None:
         check_range("b_max", self.b_max, 0.0, 2.0, lo_open=True)
@@ -920,9 +920,14 @@ def _choose(fams: dict, n_used: np.ndarray, criterion: str, forced: np.ndarray |
 
 
 def _fit_chunk(args):
-    """Worker: fit the three families for one padded chunk (top level so it pickles)."""
+    """Worker: fit the three families for one padded chunk (top level so it pickles).
+
+    Floating-point overflow on extreme inputs (e.g. a rate of 1e-313 bbl/d) is silenced
+    here: non-finite trial costs are rejected by the solver and non-finite starts replaced.
+    """
     t, y, w0, fixed_b, kw = args
-    fams = _fit_families(t, y, w0, fixed_b=fixed_b, **kw)
+    with np.errstate(over="ignore", invalid="ignore", divide="ignore", under="ignore"):
+        fams = _fit_families(t, y, w0, fixed_b=fixed_b, **kw)
     keep = ("theta", "cost", "sse", "wsse", "weights", "n_iter", "converged")
     return {f: {k: v[k] for k in keep} for f, v in fams.items()}
 
@@ -1013,8 +1018,9 @@ def fit_arps(
     y2 = np.log(q_a[good])[None, :]
     w2 = w_in[good][None, :]
     fb = np.array([np.nan if fixed_b is None else float(fixed_b)])
-    fams = _fit_families(t2, y2, w2, b_max=b_max, loss=loss, scale=loss_scale, max_iter=max_iter,
-                         tol=tol, fixed_b=fb)
+    with np.errstate(over="ignore", invalid="ignore", divide="ignore", under="ignore"):
+        fams = _fit_families(t2, y2, w2, b_max=b_max, loss=loss, scale=loss_scale, max_iter=max_iter,
+                             tol=tol, fixed_b=fb)
     forced = None
     if fixed_b is not None or model is not None:
         forced = np.array([MODEL_NAMES.index(model or "hyperbolic")])
@@ -1078,13 +1084,17 @@ def sorted_well_codes(production: pd.DataFrame):
     each row's well code and its month as an integer (months since 1970-01)."""
     codes, uniques = pd.factorize(production["well_id"], sort=True)
     mi = _month_int(pd.to_datetime(production["month"]).to_numpy())
-    order = np.lexsort((mi, codes))
     df = production
-    if order.size and (np.any(order != np.arange(order.size)) or codes.min() < 0):
-        order = order[codes[order] >= 0]  # rows without a well id cannot be placed
-        df = production.take(order)
-        codes, mi = codes[order], mi[order]
-    return df, pd.Index(uniques), codes.astype(np.int64), mi
+    if codes.size:
+        dc = np.diff(codes)
+        in_order = bool(codes[0] >= 0 and np.all(dc >= 0) and np.all((dc > 0) | (np.diff(mi) > 0)))
+        del dc
+        if not in_order:
+            order = np.lexsort((mi, codes))
+            order = order[codes[order] >= 0]  # rows without a well id cannot be placed
+            df = production.take(order)
+            codes, mi = codes[order], mi[order]
+    return df, pd.Index(uniques), codes, mi
 
 
 def _median3(a: np.ndarray, b: np.ndarray, c: np.ndarray) -> np.ndarray:

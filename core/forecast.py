@@ -137,6 +137,11 @@ def forecast_field(
     See the module docstring for the method (modified hyperbolic rule, uptime, exact
     monthly integrals, end of forecast).
     """
+    with np.errstate(over="ignore", under="ignore"):  # extreme inputs: results checked finite below
+        return _forecast(fits, production, settings, as_of, monthly)
+
+
+def _forecast(fits, production, settings, as_of, monthly):
     if isinstance(fits, FieldFit):
         st = settings or fits.settings
         fit_table = fits.fits
