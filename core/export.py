@@ -243,13 +243,20 @@ def _result_tables(result: Any, wells: Iterable[str] | None = None) -> dict[str,
         "load_report": result.load_report,
     }
     if wells is not None:
-        keep = set(map(str, wells))
-        tables["wells"] = result.wells[result.wells["well_id"].astype(str).isin(keep)]
-        tables["monthly"] = result.monthly[result.monthly["well_id"].astype(str).isin(keep)]
+        keep = sorted(set(map(str, wells)))
+        tables["wells"] = result.wells[_isin(result.wells["well_id"], keep)]
+        tables["monthly"] = result.monthly[_isin(result.monthly["well_id"], keep)]
         rep = result.load_report
         if "well_id" in rep.columns:
-            tables["load_report"] = rep[rep["well_id"].isna() | rep["well_id"].astype(str).isin(keep)]
+            tables["load_report"] = rep[rep["well_id"].isna() | _isin(rep["well_id"], keep)]
     return tables
+
+
+def _isin(s: pd.Series, keep: list[str]) -> pd.Series:
+    """``s`` (ids as text or categorical text) is one of ``keep``; no per-row string copies."""
+    if isinstance(s.dtype, pd.CategoricalDtype) or pd.api.types.is_string_dtype(s.dtype):
+        return s.isin(keep)
+    return s.astype(str).isin(keep)
 
 
 def tables_to_csv_bytes(result: Any, *, wells: Iterable[str] | None = None) -> dict[str, bytes]:

@@ -267,3 +267,10 @@ def test_xlsx_numbers_keep_full_precision():
     assert [wb["units"].cell(row=r, column=2).value for r in range(2, 7)] == vals
     rows = _csv_rows(tables_to_csv_bytes(res)["units.csv"])
     assert [float(r[1]) for r in rows[1:]] == vals
+
+
+def test_xlsx_subset_of_wells():
+    wb = openpyxl.load_workbook(io.BytesIO(run_to_xlsx_bytes(_result(), wells=["W3", "'=EVIL()"])))
+    assert [r[0] for r in wb["wells"].iter_rows(min_row=2, values_only=True)] == ["W3"]
+    assert {r[0] for r in wb["forecast_monthly"].iter_rows(min_row=2, values_only=True)} == {"W3"}
+    assert wb["load_report"].max_row == 1  # the report line of W-1 is left out
