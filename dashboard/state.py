@@ -842,14 +842,25 @@ def fitted_curve(run, well_id: str, stream: str = "oil") -> pd.DataFrame:
     from core import decline
 
     row = well_row(run, well_id)
-    cols = {"oil": ("qi_bopd", "di_annual_nominal", "b", "model"),
-            "gas": ("gas_qi_mcf_d", "gas_di_annual_nominal", "gas_b", "gas_model")}[stream]
-    qi, di, b, model = (row.get(c) for c in cols)
     empty = pd.DataFrame(columns=["month", "rate"])
-    if any(v is None or pd.isna(v) for v in (qi, di, row.get("fit_start"), row.get("fit_end"))):
+    if stream == "oil":
+        qi, di, b, model = (row.get(c) for c in ("qi_bopd", "di_annual_nominal", "b", "model"))
+        start, end = row.get("fit_start"), row.get("fit_end")
+    else:
+        # The gas stream has its own fit window: take it from the decline engine's fit table.
+        fits = getattr(run, "fits", None)
+        if fits is None or fits.empty or "stream" not in fits:
+            return empty
+        f = _well_slice(fits, _run_table_key(run, "fits"), well_id)
+        f = f.loc[f["stream"] == "gas"]
+        if f.empty:
+            return empty
+        f = f.iloc[0]
+        qi, di, b, model, start, end = (f.get(c) for c in ("qi", "di", "b", "model", "fit_start", "fit_end"))
+    if any(v is None or pd.isna(v) for v in (qi, di, start, end)):
         return empty
-    months = pd.date_range(row["fit_start"], row["fit_end"], freq="MS")
-    t_yr = (months - pd.Timestamp(row["fit_start"])).days.to_numpy() / decline.DAYS_PER_YEAR
+    months = pd.date_range(start, end, freq="MS")
+    t_yr = (months - pd.Timestamp(start)).days.to_numpy() / decline.DAYS_PER_YEAR
     b = 0.0 if b is None or pd.isna(b) else float(b)
     term = row.get("terminal_decline_annual_effective")
     try:
@@ -1038,10 +1049,13 @@ def select_well(well_id: str) -> None:
 
 
 def selected_well(run) -> str | None:
+    """The well on the Well review page; by default the first well with a depletion stage
+    (an oil well under solution-gas drive), else the first well."""
     ids = well_ids(run)
     w = st.session_state.get(WELL)
     if w not in ids:
-        w = ids[0] if ids else None
+        staged = run.wells.loc[run.wells["stage"].notna(), "well_id"].astype(str)
+        w = staged.iloc[0] if len(staged) else (ids[0] if ids else None)
         st.session_state[WELL] = w
     return w
 
