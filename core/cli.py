@@ -106,6 +106,7 @@ def build_parser() -> argparse.ArgumentParser:
     i.add_argument("--units", choices=("field", "metric"), default="field", help="unit system of the input (outputs are always field units: bbl, Mcf, psia). Default field")
     i.add_argument("--pressure-kind", choices=("average_reservoir", "static_bhp"), default="average_reservoir", help="what the pressure column holds [psia]: average reservoir pressure or static bottom-hole pressure. Default average_reservoir")
     i.add_argument("--max-file-mb", type=float, default=DEFAULT_MAX_FILE_MB, metavar="MB", help=f"largest input file accepted [MiB]. Default {DEFAULT_MAX_FILE_MB:g}")
+    i.add_argument("--date-order", choices=("dmy", "mdy"), help="day/month order of dates like 03/04/2021 when the data cannot resolve it: dmy (day first) or mdy (month first). Default: resolved from the data, else an input error")
     i.add_argument("--unit-column", metavar="NAME", help="input column holding the reservoir unit. Default: recognised from the header")
 
     s = f.add_argument_group("store and output")
@@ -278,6 +279,7 @@ def _forecast(args: argparse.Namespace, out: TextIO, err: TextIO) -> int:
             load = load_inputs(
                 args.input, wells_path=args.wells, settings=settings, sheet=args.sheet,
                 pressure_kind=args.pressure_kind, max_bytes=int(args.max_file_mb * 2**20),
+                dayfirst=None if args.date_order is None else args.date_order == "dmy",
             )
             phase = "run"
             result = run_field(load, settings=settings, progress=_scaled(bar, 0.05, 0.85))
@@ -297,7 +299,10 @@ def _forecast(args: argparse.Namespace, out: TextIO, err: TextIO) -> int:
         except (InputError, ValueError, OSError) as exc:
             bar.close()
             if isinstance(exc, InputError) or phase in ("options", "load"):
-                _err(err, str(exc) or type(exc).__name__)
+                msg = str(exc) or type(exc).__name__
+                if "dayfirst" in msg:  # the loader names its argument; say the option here
+                    msg += " (on the command line: --date-order dmy or --date-order mdy)"
+                _err(err, msg)
                 return EXIT_INPUT
             if isinstance(exc, OSError) and phase in ("export", "store"):
                 _err(err, f"cannot write the outputs: {exc}")

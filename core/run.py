@@ -416,6 +416,7 @@ def load_inputs(
     sheet: str | None = None,
     pressure_kind: str = "average_reservoir",
     max_bytes: int | None = None,
+    dayfirst: bool | None = None,
 ) -> Any:
     """Load a production file (and optional well-header file) with the run's input settings.
 
@@ -431,6 +432,8 @@ def load_inputs(
         What the pressure column holds.
     max_bytes : int, optional
         Largest file accepted [bytes]; default the loader's limit.
+    dayfirst : bool, optional
+        Day/month order of dates like 03/04/2021 when the data cannot resolve it.
 
     Returns the loader's ``LoadResult``. Raises :class:`InputError` when a file cannot be used.
     """
@@ -442,6 +445,7 @@ def load_inputs(
         unit_column=settings.unit_column,
         well_header=None if wells_path is None else Path(wells_path),
         pressure_kind=pressure_kind,
+        dayfirst=dayfirst,
     )
     if max_bytes is not None:
         kwargs["max_bytes"] = int(max_bytes)
@@ -457,12 +461,13 @@ def run_from_files(
     sheet: str | None = None,
     pressure_kind: str = "average_reservoir",
     max_bytes: int | None = None,
+    dayfirst: bool | None = None,
     progress: ProgressCallback | None = None,
 ) -> RunResult:
     """Load the files and run: :func:`load_inputs` then :func:`run_field` (used by the CLI)."""
     load = load_inputs(
         production_path, wells_path=wells_path, settings=settings, sheet=sheet,
-        pressure_kind=pressure_kind, max_bytes=max_bytes,
+        pressure_kind=pressure_kind, max_bytes=max_bytes, dayfirst=dayfirst,
     )
     return run_field(load, settings=settings, overrides=overrides, progress=progress)
 

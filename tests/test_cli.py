@@ -20,7 +20,7 @@ FORECAST_OPTIONS = [
     "--wells", "--out", "--sheet", "--econ-limit-bopd", "--econ-limit-mcfd", "--pressure-kind", "--max-file-mb", "--oil-price", "--gas-price",
     "--opex-per-month", "--nri", "--wi", "--severance-tax", "--as-of", "--b-max",
     "--terminal-decline", "--horizon-years", "--workers", "--units", "--unit-column", "--db",
-    "--field-name", "--no-xlsx", "--progress", "--quiet", "--debug",
+    "--field-name", "--no-xlsx", "--progress", "--quiet", "--debug", "--date-order",
 ]
 
 
@@ -179,8 +179,16 @@ def test_input_options_reach_the_loader(tmp_path, monkeypatch):
     h.write_text("well_id\nA\n")
     code, _, err = _run(["forecast", str(f), "--out", str(tmp_path / "o"), "--units", "metric",
                          "--unit-column", "Zone", "--sheet", "Monthly", "--pressure-kind", "static_bhp",
-                         "--max-file-mb", "1.5", "--wells", str(h)])
+                         "--max-file-mb", "1.5", "--wells", str(h), "--date-order", "dmy"])
     assert code == EXIT_INPUT and "stop here" in err
     assert seen["units"] == "metric" and seen["unit_column"] == "Zone" and seen["sheet"] == "Monthly"
     assert seen["pressure_kind"] == "static_bhp" and seen["max_bytes"] == int(1.5 * 2**20)
     assert str(seen["well_header"]) == str(h) and str(seen["source"]) == str(f)
+    assert seen["dayfirst"] is True
+
+
+def test_ambiguous_dates_message_names_the_option(tmp_path):
+    f = tmp_path / "p.csv"
+    f.write_text("well,date,oil\nA,03/04/2021,10\nA,04/05/2021,9\nA,05/06/2021,8\n")
+    code, _, err = _run(["forecast", str(f), "--out", str(tmp_path / "o"), "--no-xlsx"])
+    assert code == EXIT_INPUT and "--date-order" in err and len(err.strip().splitlines()) == 1
