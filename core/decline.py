@@ -1338,7 +1338,7 @@ def _fit_stream(stream, wells, wcode, mi_all, rate, days_on, uptime, dim, rs_sta
         peak[ix.index.to_numpy()] = sub["mi"].to_numpy()[ix.to_numpy()]
     last_valid = np.full(n_wells, np.nan)
     if vi.size:
-        np.fmax.at(last_valid, w_v, mi_v.astype(float))
+        last_valid[w_v[last]] = mi_v[last]  # rows sorted by well and month: the last row
     fs = np.where(np.isfinite(ov_start), ov_start, peak)
     fe = np.where(np.isfinite(ov_end), ov_end, last_valid)
     src = np.where(np.isfinite(ov_start), "override", src)
@@ -1475,7 +1475,8 @@ def _fit_stream(stream, wells, wcode, mi_all, rate, days_on, uptime, dim, rs_sta
         s_lr = np.bincount(wu[tail], weights=np.log(rate[uu[tail]]), minlength=n_wells)
         n_t = np.bincount(wu[tail], minlength=n_wells)
         first_tail = np.full(n_wells, np.nan)
-        np.fmin.at(first_tail, wu[tail], mi_all[uu[tail]].astype(float))
+        ft = tail & (rank_from_end == np.minimum(cnt[wu], 3) - 1)  # first of the last 3 rows
+        first_tail[wu[ft]] = mi_all[uu[ft]]
         fl = np.flatnonzero(flat)
         qi[fl] = np.exp(s_lr[fl] / n_t[fl])
         di[fl] = st.d_lim_nominal

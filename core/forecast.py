@@ -171,7 +171,8 @@ def _forecast(fits, production, settings, as_of, monthly):
     cum_gas = np.bincount(code, weights=gas, minlength=n_w)
     last_mi = np.full(n_w, np.nan)
     if code.size:
-        np.fmax.at(last_mi, code, mi.astype(float))
+        lastrow = np.r_[code[1:] != code[:-1], True]  # rows sorted by well and month
+        last_mi[code[lastrow]] = mi[lastrow]
     has_hist = np.isfinite(last_mi)
     # recent uptime and GOR over the last `uptime_months` producing months
     prod_rows = np.flatnonzero((don > 0) & ((oil > 0) | (gas > 0)))
