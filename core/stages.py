@@ -45,6 +45,7 @@ Everything is vectorised over series: the producing months are packed into a
 from __future__ import annotations
 
 import functools
+import itertools
 import math
 import warnings
 from dataclasses import dataclass
@@ -644,16 +645,28 @@ def _analyse(months: pd.DataFrame, surveys: pd.DataFrame, cumtab: pd.DataFrame, 
     j2 = np.where(has_rise, np.maximum(last_below + 1, 0), -1)
     j2 = np.where(has_rise, np.minimum(j2, jr), -1)
 
-    # GOR peak after stage 2 end
+    # GOR peak after stage 2 end. Only the interior of the smoothed series is searched: the
+    # last half-window of a Savitzky-Golay filter is an extrapolation whose noise is several
+    # times the interior's, so one noisy last month would otherwise move the maximum (and
+    # un-declare a confirmed peak when one more month of data arrives).
+    half = np.where(hi, SAVGOL_WINDOW_HIGH_NOISE // 2, SAVGOL_WINDOW_LOW_NOISE // 2)
+    interior = V & (J <= (n_i - 1 - half)[:, None])
     after2 = V & (J >= np.maximum(j2, 0)[:, None]) & has_rise[:, None]
-    Sp = np.where(after2, S, -np.inf)
+    Sp = np.where(after2 & interior, S, -np.inf)
     jp = np.argmax(Sp, axis=1)
     s_pk = S[rows, np.minimum(jp, L - 1)]
-    n_after = n_i - 1 - jp
     drop_thr = np.maximum(PEAK_DROP_MIN_LOG, PEAK_DROP_K * sig_s)
-    lastm = V & (J >= (n_i - PEAK_HOLD_MONTHS)[:, None])
-    down = np.where(lastm, S < (s_pk - drop_thr)[:, None], True).all(axis=1)
-    peak_ok = (has_rise & (n_after >= PEAK_HOLD_MONTHS) & down
+    # sustained decline: PEAK_HOLD_MONTHS consecutive interior smoothed months after the
+    # maximum, each below it by more than drop_thr ...
+    below_pk = interior & (J > jp[:, None]) & (S < (s_pk - drop_thr)[:, None])
+    down = (_run_length_forward(below_pk) >= PEAK_HOLD_MONTHS).any(axis=1)
+    # ... and the raw GOR of the latest months (median, robust to a spike) not back above it
+    tail = V & (J >= (n_i - 1 - half)[:, None])
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", RuntimeWarning)
+        z_tail = np.nanmedian(np.where(tail, Z, np.nan), axis=1)
+    down &= z_tail < s_pk
+    peak_ok = (has_rise & np.isfinite(Sp[rows, jp]) & down
                & (s_pk > ln_rsi + PEAK_MIN_ABOVE_RSI_LOG))
     # refine the peak month: vertex of a quadratic through the smoothed values around it
     jm, jpp = np.clip(jp - 1, 0, L - 1), np.clip(jp + 1, 0, L - 1)
@@ -855,6 +868,7 @@ def _analyse(months: pd.DataFrame, surveys: pd.DataFrame, cumtab: pd.DataFrame, 
 #: (wells of one reservoir share their rock curves; common practice).
 MB_SGC_GRID = (0.02, 0.04, 0.06, 0.08, 0.10)
 MB_SWC_GRID = (0.18, 0.24)
+MB_SORG_GRID = (0.12, 0.15, 0.18)
 #: Rounding of the header (API, gas gravity, degF, Pb psia, pi psia) that groups wells into
 #: one PVT path, and the most groups matched in one call (speed guard: each group costs
 #: one Tarner run per Corey set).
@@ -865,8 +879,10 @@ MB_SURVEY_TOL_MONTHS = 6
 #: Wells (most producing months first) used to choose the Corey set of a group.
 MB_SELECT_WELLS = 20
 #: Recovery-factor grid (coarse, log-spaced) and refinement points.
-MB_GRID_POINTS = 60
-MB_REFINE_POINTS = 21
+MB_GRID_LOG_POINTS = 8
+MB_GRID_POINTS = 30
+MB_REFINE_POINTS = 7
+MB_REFINE_ROUNDS = 2
 #: At most this many blocks of consecutive producing months enter the fit (block GOR =
 #: summed gas / summed oil, weighted by its number of months).
 MB_MAX_BLOCKS = 48
@@ -885,32 +901,47 @@ MB_PEAK_CHI2 = 1.0
 
 
 @functools.lru_cache(maxsize=64)
-def _mb_curves(api: float, gamma_g: float, t_f: float, pb: float, pi: float) -> list[dict]:
-    """Tarner depletion paths for the Corey grid (core.material_balance), one dict each."""
-    from core.material_balance import PvtTable, predict_depletion  # noqa: PLC0415
+def _mb_pvt(api: float, gamma_g: float, t_f: float, pb: float, pi: float):
+    """Standing PVT table of a PVT group (core.material_balance.PvtTable), cached."""
+    from core.material_balance import PvtTable  # noqa: PLC0415
+
+    p_ab = max(50.0, 0.04 * pb)
+    return PvtTable.from_correlations(api=api, gamma_g=gamma_g, t_f=t_f, pb_psia=pb, p_max_psia=max(pi, pb + 1.0),
+                                      p_min_psia=p_ab - 1.0)
+
+
+@functools.lru_cache(maxsize=1024)
+def _mb_curve(api: float, gamma_g: float, t_f: float, pb: float, pi: float,
+              sgc: float, swc: float, sorg: float) -> dict:
+    """Tarner depletion path of one PVT group and Corey set (core.material_balance), cached."""
+    from core.material_balance import predict_depletion  # noqa: PLC0415
     from core.relperm import CoreyGasOil  # noqa: PLC0415
 
     pi = max(pi, pb)
     p_ab = max(50.0, 0.04 * pb)
-    pvt = PvtTable.from_correlations(api=api, gamma_g=gamma_g, t_f=t_f, pb_psia=pb, p_max_psia=max(pi, pb + 1.0),
-                                     p_min_psia=p_ab - 1.0)
-    out = []
-    for sgc in MB_SGC_GRID:
-        for swc in MB_SWC_GRID:
-            rp = CoreyGasOil(swc=swc, sgc=sgc, sorg=0.15)
-            pred = predict_depletion(pvt, rp, pi_psia=max(pi, pb + 1.0), p_abandon_psia=p_ab,
-                                     dp_psia=max(5.0, (pb - p_ab) / 120.0), n_steps_above=20)
-            t = pred.table
-            out.append({
-                "label": f"Tarner path, Corey Sgc {sgc:.2f} Swc {swc:.2f}",
-                "r": t["np_over_n"].to_numpy(float), "gp": t["gp_over_n_scf_stb"].to_numpy(float),
-                "gor": t["producing_gor_scf_stb"].to_numpy(float),
-                "r_b": float(pred.np_over_n_bubble),
-                "r_s2": np.nan if pred.np_over_n_stage2_end is None else float(pred.np_over_n_stage2_end),
-                "r_pk": np.nan if pred.np_over_n_gor_peak is None else float(pred.np_over_n_gor_peak),
-                "gor_pk": np.nan if pred.gor_peak_scf_stb is None else float(pred.gor_peak_scf_stb),
-            })
-    return out
+    pvt = _mb_pvt(api, gamma_g, t_f, pb, pi)
+    rp = CoreyGasOil(swc=swc, sgc=sgc, sorg=sorg)
+    pred = predict_depletion(pvt, rp, pi_psia=max(pi, pb + 1.0), p_abandon_psia=p_ab,
+                             dp_psia=max(5.0, (pb - p_ab) / 120.0), n_steps_above=20)
+    t = pred.table
+    return {
+        "label": f"Tarner path, Corey Sgc {sgc:.2f} Swc {swc:.2f} Sorg {sorg:.2f}",
+        "r": t["np_over_n"].to_numpy(float), "gp": t["gp_over_n_scf_stb"].to_numpy(float),
+        "gor": t["producing_gor_scf_stb"].to_numpy(float),
+        "r_b": float(pred.np_over_n_bubble),
+        "r_s2": np.nan if pred.np_over_n_stage2_end is None else float(pred.np_over_n_stage2_end),
+        "r_pk": np.nan if pred.np_over_n_gor_peak is None else float(pred.np_over_n_gor_peak),
+        "gor_pk": np.nan if pred.gor_peak_scf_stb is None else float(pred.gor_peak_scf_stb),
+    }
+
+
+def _mb_grid(curve: dict) -> np.ndarray:
+    """Recovery-factor candidates: ``MB_GRID_LOG_POINTS`` log-spaced from 0.001 to the bubble
+    point (stage 1, where the GOR is flat and the misfit barely changes) and
+    ``MB_GRID_POINTS`` evenly spaced from there to the end of the path (where the GOR moves)."""
+    rb = min(max(curve["r_b"], 2e-3), 0.5 * curve["r"][-1])
+    return np.r_[np.exp(np.linspace(np.log(1e-3), np.log(rb), MB_GRID_LOG_POINTS, endpoint=False)),
+                 np.linspace(rb, curve["r"][-1], MB_GRID_POINTS)]
 
 
 def _mb_loss(curve: dict, rnow: np.ndarray, fs: np.ndarray, fe: np.ndarray, z: np.ndarray,
@@ -960,38 +991,56 @@ def _mb_fit(Z, FS, FE, V, W, sigma, groups: np.ndarray, group_keys: list) -> dic
         rows = np.flatnonzero(groups == gi)
         if rows.size == 0:
             continue
-        try:
-            with warnings.catch_warnings():
-                warnings.simplefilter("ignore")
-                curves = _mb_curves(*key)
-        except (ValueError, ArithmeticError, RuntimeError):
-            continue
-        # choose the Corey set on the wells with the most data
+        # choose the Corey set on the wells with the most data, by coordinate search: every
+        # Sgc x Swc at the middle Sorg, then the other Sorg values at the best Sgc, Swc
+        # (MB_SGC x MB_SWC + MB_SORG - 1 Tarner runs per group instead of the full product)
         sel = rows[np.argsort(-nvalid[rows], kind="stable")[:MB_SELECT_WELLS]]
-        best_c, best_l = None, np.inf
-        for c in curves:
-            grid = np.exp(np.linspace(np.log(1e-3), np.log(c["r"][-1]), MB_GRID_POINTS))
-            L = _mb_loss(c, np.broadcast_to(grid, (sel.size, grid.size)), FS[sel], FE[sel], Zc[sel], V[sel], clip[sel], W[sel])
-            tot = L.min(axis=1).sum()
-            if tot < best_l:
-                best_c, best_l = c, tot
+        best_c, best_l, best_set = None, np.inf, None
+        sorg_mid = MB_SORG_GRID[len(MB_SORG_GRID) // 2]
+        first = [(g, w, sorg_mid) for g in MB_SGC_GRID for w in MB_SWC_GRID]
+        for stage_sets in (first, None):
+            if stage_sets is None:
+                if best_set is None:
+                    break
+                stage_sets = [(best_set[0], best_set[1], so) for so in MB_SORG_GRID if so != sorg_mid]
+            for cs_ in stage_sets:
+                try:
+                    with warnings.catch_warnings():
+                        warnings.simplefilter("ignore")
+                        c = _mb_curve(*key, *cs_)
+                except (ValueError, ArithmeticError, RuntimeError):
+                    continue
+                grid = _mb_grid(c)
+                L = _mb_loss(c, np.broadcast_to(grid, (sel.size, grid.size)), FS[sel], FE[sel], Zc[sel], V[sel],
+                             clip[sel], W[sel])
+                tot = L.min(axis=1).sum()
+                if tot < best_l:
+                    best_c, best_l, best_set = c, tot, cs_
         if best_c is None:
             continue
         c = best_c
-        grid = np.exp(np.linspace(np.log(1e-3), np.log(c["r"][-1]), MB_GRID_POINTS))
+        grid = _mb_grid(c)
         L = _mb_loss(c, np.broadcast_to(grid, (rows.size, grid.size)), FS[rows], FE[rows], Zc[rows], V[rows], clip[rows], W[rows])
         kb = L.argmin(axis=1)
-        # refine between the neighbours of the best grid point
+        # refine twice between the neighbours of the best point so far
+        idx = np.arange(rows.size)
         lo_g = grid[np.maximum(kb - 1, 0)]
         hi_g = grid[np.minimum(kb + 1, grid.size - 1)]
-        fine = lo_g[:, None] + (hi_g - lo_g)[:, None] * np.linspace(0.0, 1.0, MB_REFINE_POINTS)[None, :]
-        Lf = _mb_loss(c, fine, FS[rows], FE[rows], Zc[rows], V[rows], clip[rows], W[rows])
-        kf = Lf.argmin(axis=1)
-        rbest = fine[np.arange(rows.size), kf]
-        lbest = Lf[np.arange(rows.size), kf]
+        allr, allL = [np.broadcast_to(grid, (rows.size, grid.size))], [L]
+        for _ in range(MB_REFINE_ROUNDS):
+            fine = lo_g[:, None] + (hi_g - lo_g)[:, None] * np.linspace(0.0, 1.0, MB_REFINE_POINTS)[None, :]
+            Lf = _mb_loss(c, fine, FS[rows], FE[rows], Zc[rows], V[rows], clip[rows], W[rows])
+            kf = Lf.argmin(axis=1)
+            allr.append(fine)
+            allL.append(Lf)
+            step = (hi_g - lo_g) / (MB_REFINE_POINTS - 1)
+            mid = fine[idx, kf]
+            lo_g, hi_g = np.maximum(mid - step, fine[:, 0]), np.minimum(mid + step, fine[:, -1])
+        rbest = fine[idx, kf]
+        lbest = Lf[idx, kf]
         # profile interval on the coarse grid plus the fine points
-        allr = np.concatenate([np.broadcast_to(grid, (rows.size, grid.size)), fine], axis=1)
-        allL = np.concatenate([L, Lf], axis=1)
+        allr = np.concatenate(allr, axis=1)
+        allL = np.concatenate(allL, axis=1)
         inside = allL <= (lbest + MB_PROFILE_CHI2 * sigma[rows] ** 2)[:, None]
         lo = np.where(inside, allr, np.inf).min(axis=1)
         hi = np.where(inside, allr, -np.inf).max(axis=1)

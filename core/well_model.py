@@ -60,8 +60,13 @@ HEADER_COLUMNS = ("well_id", "unit", "api_gravity", "gas_specific_gravity", "res
                   "initial_pressure_psia", "bubble_point_psia")
 TRUTH_COLUMNS = ("well_id", "unit", "fluid", "rsi_scf_stb", "bubble_point_psia", "bubble_point_month",
                  "stage2_end_month", "gor_peak_month", "final_stage", "ooip_stb", "sgc",
-                 "np_over_n_final", "workover_month")
+                 "np_over_n_final", "workover_month", "gor_peak_band_start_month", "gor_peak_band_end_month")
 
+
+#: Relative width of the "flat top" band reported with the GOR peak truth: the producing
+#: months whose noise-free GOR lies within this fraction of the maximum (truth columns
+#: ``gor_peak_band_start_month`` / ``gor_peak_band_end_month``).
+PEAK_BAND_REL = 0.01
 
 # --------------------------------------------------------------------------------------
 # Fluid/rock set and its precomputed depletion curve
@@ -288,8 +293,22 @@ def _simulate_arrays(
         after_bp = np.arange(n) > k_bp
         gor0 = np.where(prod, gor_true, 0.0)
         k_s2 = first(after_bp & prod & (gor0 > rsi * (1.0 + 1e-9)))
+    k_b0 = k_b1 = None
     if np.isfinite(curve.r_gor_peak) and r_end[-1] > curve.r_gor_peak and k_s2 is not None:
-        k_pk = int(np.argmax(np.where(prod, gor_true, -np.inf)))
+        g_pk = np.where(prod, gor_true, -np.inf)
+        k_pk = int(np.argmax(g_pk))
+        # the flat top: the producing months around the peak whose noise-free GOR is within
+        # PEAK_BAND_REL of the maximum (the peak month is not identifiable closer than this)
+        near = prod & (gor_true >= (1.0 - PEAK_BAND_REL) * g_pk[k_pk])
+        k_b0, k_b1 = k_pk, k_pk
+        while k_b0 > 0 and (near[k_b0 - 1] or not prod[k_b0 - 1]):
+            k_b0 -= 1
+        while k_b1 < n - 1 and (near[k_b1 + 1] or not prod[k_b1 + 1]):
+            k_b1 += 1
+        while not prod[k_b0]:
+            k_b0 += 1
+        while not prod[k_b1]:
+            k_b1 -= 1
 
     def month_at(k: int | None) -> Any:
         return nat if k is None else pd.Timestamp(months[k])
@@ -308,6 +327,7 @@ def _simulate_arrays(
         "oil_true": oil_true, "gas_true_mcf": gas_true_scf / 1000.0, "gor_true": gor_true, "p_mid": p_mid,
         "r_end": r_end, "bubble_point_month": bp_month, "stage2_end_month": s2_month,
         "gor_peak_month": peak_month, "final_stage": final_stage,
+        "gor_peak_band": (month_at(k_b0), month_at(k_b1)),
     }
 
 
@@ -342,7 +362,8 @@ def _simulate_record(well_id: str, *, fluid: FluidRock, start_month: Any, n_mont
              "bubble_point_psia": fluid.pb_psia, "bubble_point_month": a["bubble_point_month"],
              "stage2_end_month": a["stage2_end_month"], "gor_peak_month": a["gor_peak_month"],
              "final_stage": a["final_stage"], "ooip_stb": ooip, "sgc": fluid.relperm.sgc,
-             "np_over_n_final": float(a["r_end"][-1]), "workover_month": wo}
+             "np_over_n_final": float(a["r_end"][-1]), "workover_month": wo,
+             "gor_peak_band_start_month": a["gor_peak_band"][0], "gor_peak_band_end_month": a["gor_peak_band"][1]}
     return a, header, truth
 
 
@@ -413,7 +434,10 @@ def simulate_well(
     which the average reservoir pressure falls below the bubble point; ``stage2_end_month`` the
     first later producing month whose noise-free GOR exceeds Rsi; ``gor_peak_month`` the month
     of the highest noise-free monthly GOR once the path has passed the material-balance GOR
-    maximum (NaT otherwise); ``final_stage`` 1-4 at the last month.
+    maximum (NaT otherwise); ``gor_peak_band_start_month`` / ``gor_peak_band_end_month`` the
+    first and last producing month of the contiguous band around it whose noise-free GOR is
+    within ``PEAK_BAND_REL`` (1 %) of the maximum (the flat top, inside which the month of the
+    maximum is not identifiable from noisy data); ``final_stage`` 1-4 at the last month.
     """
     fluid = FluidRock() if fluid is None else fluid
     if not isinstance(fluid, FluidRock):
@@ -503,7 +527,8 @@ def simulate_gas_well(
     nat = pd.NaT
     truth = {"well_id": well_id, "unit": unit, "fluid": fluid, "rsi_scf_stb": gor0, "bubble_point_psia": np.nan,
              "bubble_point_month": nat, "stage2_end_month": nat, "gor_peak_month": nat, "final_stage": pd.NA,
-             "ooip_stb": np.nan, "sgc": np.nan, "np_over_n_final": np.nan, "workover_month": nat}
+             "ooip_stb": np.nan, "sgc": np.nan, "np_over_n_final": np.nan, "workover_month": nat,
+             "gor_peak_band_start_month": nat, "gor_peak_band_end_month": nat}
     noise_free = pd.DataFrame({"month": months, "oil_bbl": q * days * 1000.0 / gor, "gas_mcf": q * days,
                                "gor_scf_stb": gor, "pressure_psia": np.nan, "np_over_n": np.nan})
     return SyntheticWell(well_id=well_id, monthly=monthly, header=header, truth=truth, noise_free=noise_free)
@@ -674,7 +699,8 @@ def synthetic_field(
     production["month"] = production["month"].astype("datetime64[ns]")
     wells = pd.DataFrame(headers, columns=list(HEADER_COLUMNS))
     truth = pd.DataFrame(truths, columns=list(TRUTH_COLUMNS))
-    for c in ("bubble_point_month", "stage2_end_month", "gor_peak_month", "workover_month"):
+    for c in ("bubble_point_month", "stage2_end_month", "gor_peak_month", "workover_month",
+              "gor_peak_band_start_month", "gor_peak_band_end_month"):
         truth[c] = pd.to_datetime(truth[c]).astype("datetime64[ns]")
     truth["final_stage"] = truth["final_stage"].astype("Int64")
     return SyntheticField(production=production, wells=wells, truth=truth)
