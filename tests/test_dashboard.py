@@ -371,3 +371,32 @@ def test_an_unusable_store_is_said_once_and_the_app_still_works(tmp_path, monkey
     at.switch_page("pages/overview.py").run()
     assert not at.exception
     assert _metric(at, "Wells")
+
+
+def test_fit_window_and_excluded_months_override_equals_core_then_removal(sample_run):
+    load, run = sample_run
+    at = _app()
+    at.switch_page("pages/well.py").run()
+    well = at.selectbox(key="well_pick").value
+    months = at.selectbox(key="ov_start").options[1:]  # after "automatic"
+    start, excluded = months[len(months) // 3], months[len(months) // 2]
+    at.selectbox(key="ov_start").select(start)
+    at.multiselect(key="ov_exclude").select(excluded)
+    at.text_input(key="ov_reason").input("workover: fit after it; one bad allocation month")
+    at.button(key=APPLY_OVERRIDE).click().run()
+    _ok(at)
+    ov = WellOverride(fit_start=pd.Timestamp(start), exclude_months=(pd.Timestamp(excluded),),
+                      reason="workover: fit after it; one bad allocation month")
+    expected = run_field(load, settings=RunSettings(), overrides={well: ov}).wells.set_index("well_id").loc[well]
+    assert expected["fit_start"] >= pd.Timestamp(start)
+    assert _metric(at, "EUR oil") == _bbl(expected["eur_oil_bbl"])
+    charts = [json.loads(c.proto.spec) for c in at.get("plotly_chart")]
+    excluded_traces = [t for c in charts for t in c["data"] if t.get("name") == "excluded from fit"]
+    assert excluded_traces and len(excluded_traces[0]["x"]) == 1
+    # Removing the override gives core's run without it back, and the removal is recorded.
+    at.button(key="ov_remove").click().run()
+    _ok(at)
+    assert at.session_state["dd_overrides"] == {}
+    assert _metric(at, "EUR oil") == _bbl(run.wells.set_index("well_id").loc[well, "eur_oil_bbl"])
+    log = at.dataframe[-1].value
+    assert "cleared" in set(log["entry_type"])
