@@ -190,7 +190,7 @@ def main() -> int:
         return 1
     r = json.loads(lines[-1])
     print(f"exit code {r['exit_code']}; wells {r['wells']:,}, forecast {r['wells_forecast']:,}; monthly rows {r['monthly_rows']:,}")
-    for phase in ("load", "fluids", "stages", "fit", "forecast", "assemble", "export"):
+    for phase in ("load", "fluids", "stages", "fit", "forecast", "units", "assemble", "export"):
         if phase in r["timings_s"]:
             print(f"  {phase:<10} {r['timings_s'][phase]:8.2f} s")
     print(f"  {'total':<10} {r['wall_s']:8.2f} s  (file to all outputs, in-process CLI)")

@@ -554,6 +554,8 @@ def run_field(
     prog(0.85, "summarising reservoir units")
     t = time.perf_counter()
     units_stage = track_units(prod, stages, header, as_of=as_of)
+    timings["units"] = time.perf_counter() - t
+    t = time.perf_counter()
     wells = _assemble_wells(prod, header, report, fluids, stages, ff.fits, fsummary, actual)
     monthly = _assemble_monthly(prod, fmonthly, actual)
     units = _assemble_units(units_stage, wells)
