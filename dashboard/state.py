@@ -1252,9 +1252,10 @@ the forecast tables.
 * Economic limit from prices and costs: the rate at which net revenue equals operating cost
   (standard formula; see the README).
 * Depletion stages of a solution-gas drive (above the bubble point; gas immobile with the
-  GOR below Rsi; free gas flowing with the GOR rising; after the GOR peak). Standard
-  reservoir-engineering texts, e.g. L. P. Dake, *Fundamentals of Reservoir Engineering*
-  (1978), ch. 3; B. C. Craft and M. F. Hawkins, *Applied Petroleum Reservoir Engineering*.
+  GOR below Rsi; free gas flowing with the GOR rising; after the GOR peak), as described in
+  standard reservoir-engineering texts on solution-gas-drive reservoirs (e.g. B. C. Craft
+  and M. F. Hawkins, *Applied Petroleum Reservoir Engineering*). The README's sources
+  section lists every method with its reference.
 * Fluid typing: W. D. McCain Jr., "Heavy Components Control Reservoir Fluid Behavior",
   JPT (1994), from initial GOR and stock-tank gravity.
 * Black-oil properties: Standing (1947), Vasquez and Beggs (1980), Beggs and Robinson (1975);
