@@ -234,6 +234,13 @@ class RunSettings:
     def __post_init__(self) -> None:
         # normalise and validate once; errors are InputError (a ValueError) with one message
         object.__setattr__(self, "as_of", _month(self.as_of, "as_of"))
+        for name in ("econ_limit_bopd", "econ_limit_mcfd", "oil_price", "gas_price", "opex_per_month", "nri",
+                     "wi", "severance_tax", "b_max", "terminal_decline", "horizon_years", "workers"):
+            value = getattr(self, name)
+            if value is None and name not in ("wi", "severance_tax", "b_max", "terminal_decline", "horizon_years"):
+                continue
+            if isinstance(value, bool) or not isinstance(value, (int, float, np.integer, np.floating)):
+                raise InputError(f"{name} must be a number, got {value!r}")
         try:
             check_range("b_max", self.b_max, 0.0, 2.0, lo_open=True)
             check_range("terminal_decline", self.terminal_decline, 0.0, 1.0, unit="1/yr (effective annual)", lo_open=True, hi_open=True)
@@ -243,6 +250,8 @@ class RunSettings:
             if self.econ_limit_mcfd is not None:
                 check_range("econ_limit_mcfd", self.econ_limit_mcfd, 0.0, None, unit="Mcf/d", lo_open=True)
             if self.workers is not None:
+                if isinstance(self.workers, bool) or int(self.workers) != self.workers:
+                    raise InputError(f"workers must be a whole number of processes, got {self.workers!r}")
                 check_range("workers", self.workers, 1, 512)
             econ = [self.oil_price, self.opex_per_month, self.nri]
             if self.econ_limit_bopd is not None:

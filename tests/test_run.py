@@ -345,3 +345,28 @@ def test_override_is_applied_and_named(field_files, result):
     # the other wells' numbers do not move (fits are per well)
     base = result.wells.set_index("well_id")
     pd.testing.assert_series_equal(w.loc[others, "eur_oil_bbl"], base.loc[w.index[others], "eur_oil_bbl"])
+
+
+@pytest.mark.parametrize(
+    "kwargs, words",
+    [
+        ({"b_max": "x"}, "b_max must be a number"),
+        ({"workers": 1.5}, "whole number"),
+        ({"terminal_decline": 6.0}, "terminal_decline must be in (0, 1)"),
+        ({"units": "imperial"}, "units must be"),
+        ({"as_of": "someday"}, "as_of must be a month"),
+        ({"oil_price": 70.0, "nri": 0.8}, "missing: opex_per_month"),
+    ],
+)
+def test_run_settings_reject_bad_values_with_one_message(kwargs, words):
+    with pytest.raises(InputError, match=None) as exc:
+        RunSettings(**kwargs)
+    assert words in str(exc.value)
+
+
+def test_run_settings_round_trip_through_a_plain_dict():
+    # the dashboard and the store keep settings as a dict and rebuild them
+    s = RunSettings(oil_price=70.0, gas_price=2.5, opex_per_month=3000.0, nri=0.8, as_of="2024-06", workers=2)
+    d = s.as_dict()
+    assert d["as_of"] == "2024-06"
+    assert RunSettings(**d) == s
