@@ -282,6 +282,23 @@ def tables_to_csv_bytes(result: Any, *, wells: Iterable[str] | None = None) -> d
 # --------------------------------------------------------------------------------------------
 # yearly summary for the workbook
 # --------------------------------------------------------------------------------------------
+def _codes(s: pd.Series) -> tuple[np.ndarray, np.ndarray]:
+    """Integer codes and their values; a categorical's own codes (category order) are used.
+
+    For text ids the codes follow the sorted order of the values, so that "sorted by well"
+    can be checked on the codes.
+    """
+    if isinstance(s.dtype, pd.CategoricalDtype):
+        cats = s.cat.categories
+        codes = s.cat.codes.to_numpy().astype(np.int64)
+        if not cats.is_monotonic_increasing:
+            rank = np.argsort(np.argsort(np.asarray(cats.astype(str), dtype=object), kind="stable"), kind="stable")
+            return rank[codes], np.asarray(cats.astype(str), dtype=object)[np.argsort(rank)]
+        return codes, np.asarray(cats.astype(str), dtype=object)
+    codes, uniq = pd.factorize(s, sort=True)
+    return codes.astype(np.int64), np.asarray(uniq, dtype=object)
+
+
 YEARLY_COLUMNS = ["well_id", "year", "kind", "months", "oil_bbl", "gas_mcf", "water_bbl", "cum_oil_bbl"]
 
 
@@ -297,14 +314,17 @@ def yearly_volumes(monthly: pd.DataFrame) -> pd.DataFrame:
     n = len(monthly)
     if n == 0:
         return pd.DataFrame({c: [] for c in YEARLY_COLUMNS})
-    w_codes, w_uniq = pd.factorize(monthly["well_id"])
-    k_codes, k_uniq = pd.factorize(monthly["kind"].astype(str))
-    year = pd.DatetimeIndex(monthly["month"]).year.to_numpy().astype(np.int64)
-    order = np.lexsort((pd.DatetimeIndex(monthly["month"]).asi8, w_codes))
-    if not np.array_equal(order, np.arange(n)):  # not sorted by well and month: sort first
+    w_codes, w_uniq = _codes(monthly["well_id"])
+    k_codes, k_uniq = _codes(monthly["kind"])
+    months = pd.DatetimeIndex(monthly["month"])
+    year = months.year.to_numpy().astype(np.int64)
+    # group keys must come in runs: sort by (well, month) unless already so (the run's order)
+    mi = months.asi8
+    ok = (w_codes[1:] > w_codes[:-1]) | ((w_codes[1:] == w_codes[:-1]) & (mi[1:] >= mi[:-1]))
+    order = None
+    if not ok.all():
+        order = np.lexsort((mi, w_codes))
         w_codes, k_codes, year = w_codes[order], k_codes[order], year[order]
-    else:
-        order = None
     change = np.ones(n, dtype=bool)
     change[1:] = (w_codes[1:] != w_codes[:-1]) | (year[1:] != year[:-1]) | (k_codes[1:] != k_codes[:-1])
     starts = np.flatnonzero(change)

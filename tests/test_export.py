@@ -274,3 +274,14 @@ def test_xlsx_subset_of_wells():
     assert [r[0] for r in wb["wells"].iter_rows(min_row=2, values_only=True)] == ["W3"]
     assert {r[0] for r in wb["forecast_monthly"].iter_rows(min_row=2, values_only=True)} == {"W3"}
     assert wb["load_report"].max_row == 1  # the report line of W-1 is left out
+
+
+def test_yearly_volumes_same_for_text_and_categorical_ids():
+    # regression between two representations of the same table (our own code on both sides)
+    res = _result(n_months=30, wells=("W-b", "W-a", "W-c"))
+    m = res.monthly.sort_values(["well_id", "month"], ignore_index=True)
+    cat = m.assign(
+        well_id=pd.Categorical(m["well_id"], categories=["W-c", "W-a", "W-b"]),  # categories not sorted
+        kind=pd.Categorical(m["kind"]),
+    )
+    pd.testing.assert_frame_equal(yearly_volumes(cat), yearly_volumes(m), check_dtype=False)
