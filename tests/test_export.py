@@ -285,3 +285,14 @@ def test_yearly_volumes_same_for_text_and_categorical_ids():
         kind=pd.Categorical(m["kind"]),
     )
     pd.testing.assert_frame_equal(yearly_volumes(cat), yearly_volumes(m), check_dtype=False)
+
+
+def test_csv_blocks_threaded_equal_sequential(monkeypatch):
+    # the threaded block writer yields the same bytes in the same order (regression, our code)
+    import core.export as export
+
+    monkeypatch.setattr(export, "_CSV_CHUNK_ROWS", 7)
+    res = _result(n_months=24)
+    seq = b"".join(export.csv_chunks(res.monthly, threads=1))
+    thr = b"".join(export.csv_chunks(res.monthly, threads=2))
+    assert seq == thr and seq.count(b"\n") == 1 + len(res.monthly)
