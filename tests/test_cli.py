@@ -9,7 +9,6 @@ from __future__ import annotations
 import io
 import re
 
-import pandas as pd
 import pytest
 
 import core.run as run_mod
