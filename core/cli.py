@@ -187,6 +187,8 @@ def format_summary(result: Any, paths: dict[str, Path] | None = None, *, changes
         f"(cumulative {_num(s.get('cum_oil_bbl_total'))}, remaining {_num(s.get('remaining_oil_bbl_total'))})"
     )
     lines.append(f"wells past the GOR peak: {s.get('wells_past_gor_peak', 0):,}")
+    for note in s.get("messages", []) or []:
+        lines.append(f"note: {note}")
     if paths:
         folder = Path(next(iter(paths.values()))).parent
         lines.append(f"outputs in {folder}: {', '.join(paths)}")

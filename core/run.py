@@ -569,6 +569,23 @@ def run_field(
     monthly = _assemble_monthly(prod, fmonthly, actual)
     units = _assemble_units(units_stage, wells)
     summary = _summary(wells, settings, as_of, load)
+    # notes of the decline engine (e.g. overrides naming wells not in the table) are never
+    # silent: they go to the summary and, as run-level "info" lines, to the load report
+    notes = [str(m) for m in getattr(ff, "messages", ()) or ()]
+    summary["messages"] = notes
+    if notes:
+        extra = pd.DataFrame(
+            {
+                "file": "(run)",
+                "row": pd.array([pd.NA] * len(notes), dtype="Int64"),
+                "well_id": "",
+                "column": "",
+                "value": "",
+                "action": "info",
+                "reason": notes,
+            }
+        )
+        report = pd.concat([report, extra.reindex(columns=report.columns)], ignore_index=True)
     timings["assemble"] = time.perf_counter() - t
     timings["run_total"] = time.perf_counter() - t0
     prog(1.0, "run complete")

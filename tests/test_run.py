@@ -370,3 +370,13 @@ def test_run_settings_round_trip_through_a_plain_dict():
     d = s.as_dict()
     assert d["as_of"] == "2024-06"
     assert RunSettings(**d) == s
+
+
+def test_override_for_an_unknown_well_is_reported(field_files, result):
+    from core.decline import WellOverride
+
+    load = load_inputs(field_files["clean"], wells_path=field_files["header"], settings=result.settings)
+    res = run_field(load, settings=result.settings, overrides={"NO-SUCH-WELL": WellOverride(b=0.5)})
+    assert any("NO-SUCH-WELL" in m for m in res.summary["messages"])
+    rep = res.load_report
+    assert ((rep["file"] == "(run)") & rep["reason"].str.contains("NO-SUCH-WELL")).sum() == 1
