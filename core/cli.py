@@ -313,8 +313,11 @@ def _forecast(args: argparse.Namespace, out: TextIO, err: TextIO) -> int:
         except Exception as exc:  # noqa: BLE001 - the command must report, never crash
             bar.close()
             return _internal(err, exc, args.debug, phase)
-    if caught:
-        counts = Counter(f"{w.category.__name__}: {w.message}" for w in caught)
+    from core.validation import DepletionDeskWarning
+
+    ours = [w for w in caught if issubclass(w.category, DepletionDeskWarning)]  # not library noise
+    if ours:
+        counts = Counter(f"{w.category.__name__}: {w.message}" for w in ours)
         err.write(f"{sum(counts.values())} warning(s) during the run:\n")
         for text, n in counts.most_common(5):
             err.write(f"  {n} x {' '.join(text.split())[:200]}\n")

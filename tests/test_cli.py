@@ -191,3 +191,28 @@ def test_ambiguous_dates_message_names_the_option(tmp_path):
     f.write_text("well,date,oil\nA,03/04/2021,10\nA,04/05/2021,9\nA,05/06/2021,8\n")
     code, _, err = _run(["forecast", str(f), "--out", str(tmp_path / "o"), "--no-xlsx"])
     assert code == EXIT_INPUT and "--date-order" in err and len(err.strip().splitlines()) == 1
+
+
+def test_our_warnings_are_summarised_on_stderr(tmp_path, monkeypatch):
+    import warnings as _w
+
+    import core.export as export_mod
+    from core.run import RunResult, RunSettings
+    from core.validation import OutOfRangeWarning
+
+    f = tmp_path / "p.csv"
+    f.write_text("well,month,oil\nA,2020-01,10\n")
+    monkeypatch.setattr(run_mod, "load_inputs", lambda *a, **k: object())
+    fake = RunResult(wells=None, monthly=None, units=None, load_report=None, candidates=None, stages=None,
+                     settings=RunSettings(), version="0", as_of=None, summary={"wells_read": 1})
+
+    def warn_and_run(*a, **k):
+        _w.warn("api 70 outside the range of Standing (1947)", OutOfRangeWarning)
+        _w.warn("some library change", DeprecationWarning)
+        return fake
+
+    monkeypatch.setattr(run_mod, "run_field", warn_and_run)
+    monkeypatch.setattr(export_mod, "write_outputs", lambda *a, **k: {})
+    code, out, err = _run(["forecast", str(f), "--out", str(tmp_path / "o")])
+    assert code == EXIT_OK and "wells read: 1" in out
+    assert "1 warning(s)" in err and "OutOfRangeWarning: api 70" in err and "DeprecationWarning" not in err
