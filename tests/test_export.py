@@ -296,3 +296,19 @@ def test_csv_blocks_threaded_equal_sequential(monkeypatch):
     seq = b"".join(export.csv_chunks(res.monthly, threads=1))
     thr = b"".join(export.csv_chunks(res.monthly, threads=2))
     assert seq == thr and seq.count(b"\n") == 1 + len(res.monthly)
+
+
+def test_xlsx_package_parts_are_well_formed():
+    # ECMA-376 Part 2 (Open Packaging Conventions): every part is XML and listed in
+    # [Content_Types].xml; the workbook names each sheet once (read with Python's zipfile/ElementTree)
+    import zipfile
+    import xml.etree.ElementTree as ET
+
+    z = zipfile.ZipFile(io.BytesIO(run_to_xlsx_bytes(_result())))
+    names = set(z.namelist())
+    assert {"[Content_Types].xml", "_rels/.rels", "xl/workbook.xml", "xl/_rels/workbook.xml.rels", "xl/styles.xml"} <= names
+    for n in names:
+        ET.fromstring(z.read(n))  # raises on malformed XML
+    ct = z.read("[Content_Types].xml").decode()
+    sheets = sorted(n for n in names if n.startswith("xl/worksheets/"))
+    assert len(sheets) == 5 and all(f'PartName="/{s}"' in ct for s in sheets)
