@@ -84,6 +84,7 @@ def measure(n_wells: int, seed: int, *, material_balance_fit: bool = True) -> di
         "bp_within_3_no_surveys": float((bp_err[crossed & ~has_sv] <= 3).mean()),
         "s2_within_3": float((s2_err[s2] <= 3).mean()),
         "confidence": m["stage_confidence"].value_counts().to_dict(),
+        "correct_by_confidence": (st == m["final_stage"]).groupby(m["stage_confidence"]).mean().round(3).to_dict(),
         "track_seconds": t_track,
         "load": load,
         "wells_table": wells,
@@ -134,7 +135,7 @@ def main(argv: list[str] | None = None) -> int:
           f"({r['n_bp_surveys']} crossed wells with surveys; without surveys "
           f"{100 * r['bp_within_3_no_surveys']:.1f} %)")
     print(f"stage-2 end within 3 months         {100 * r['s2_within_3']:5.1f} %")
-    print(f"confidence: {r['confidence']}")
+    print(f"confidence: {r['confidence']}; stage correct by confidence: {r['correct_by_confidence']}")
     print(f"track_wells time: {r['track_seconds']:.2f} s")
     print(r["confusion"].to_string())
     return 0
