@@ -26,6 +26,7 @@ PAGES = [
     st.Page("pages/overview.py", title="Field overview", icon=":material/dashboard:"),
     st.Page("pages/well.py", title="Well review", icon=":material/show_chart:"),
     st.Page("pages/planning.py", title="Unit planning", icon=":material/water_drop:"),
+    st.Page("pages/type_wells.py", title="Type wells", icon=":material/stacked_line_chart:"),
     st.Page("pages/exports.py", title="Downloads", icon=":material/download:"),
     st.Page("pages/settings.py", title="Settings", icon=":material/tune:"),
     st.Page("pages/about.py", title="About", icon=":material/info:"),

@@ -59,6 +59,9 @@ PALETTE: dict[str, Any] = {
     "pressure": _OI["bluish_green"],
     "event": "#4D4D4D",
     "expected": _OI["blue"],
+    # P90-P10 band of the probabilistic forecast: bluish green line, light tint fill
+    "band": _OI["bluish_green"],
+    "band_fill": "rgba(0, 158, 115, 0.15)",
     "stage": {
         1: _OI["sky_blue"],
         2: _OI["yellow"],
@@ -121,12 +124,14 @@ class _Fig:
         kw.setdefault("type", "scatter")
         self.data.append(kw)
 
-    def vrect(self, x0: Any, x1: Any, color: str, opacity: float, label: str | None = None) -> None:
+    def vrect(self, x0: Any, x1: Any, color: str, opacity: float, label: str | None = None,
+              at_bottom: bool = False) -> None:
         self.shapes.append(dict(type="rect", xref="x", yref="paper", x0=x0, x1=x1, y0=0, y1=1,
                                 fillcolor=color, opacity=opacity, line=dict(width=0), layer="below"))
         if label:
-            self.annotations.append(dict(x=x0, y=1.0, xref="x", yref="paper", text=label, showarrow=False,
-                                         xanchor="left", yanchor="top", font=dict(size=10)))
+            self.annotations.append(dict(x=x0, y=0.0 if at_bottom else 1.0, xref="x", yref="paper", text=label,
+                                         showarrow=False, xanchor="left", yanchor="bottom" if at_bottom else "top",
+                                         font=dict(size=10)))
 
     def hline(self, y: float, line: dict, label: str | None = None, yref: str = "y",
               xanchor: str = "left", x: float = 0.0, yanchor: str = "bottom") -> None:
@@ -166,6 +171,55 @@ def _positive(frame: pd.DataFrame, column: str) -> pd.DataFrame:
     return frame.loc[values.gt(0) & values.notna()]
 
 
+def calendar_day_rates(monthly: pd.DataFrame) -> pd.DataFrame:
+    """Monthly P90/P50/P10 volumes as calendar-day rates, for drawing.
+
+    ``monthly`` has ``month`` (month starts) and ``oil_bbl_p90``, ``oil_bbl_p50``,
+    ``oil_bbl_p10`` [bbl per month] (``core.probabilistic``). Returns ``month``, ``rate_p90``,
+    ``rate_p50``, ``rate_p10`` [bbl/d]: each volume over the calendar days of its month, the
+    basis of the deterministic forecast's ``oil_rate_bopd`` (``core.forecast``), so the band
+    and the forecast line are comparable.
+    """
+    out = pd.DataFrame({"month": pd.to_datetime(monthly["month"]).to_numpy()})
+    days = pd.to_datetime(monthly["month"]).dt.days_in_month.to_numpy(dtype=float)
+    for p in ("p90", "p50", "p10"):
+        out[f"rate_{p}"] = pd.to_numeric(monthly[f"oil_bbl_{p}"], errors="coerce").to_numpy(dtype=float) / days
+    return out
+
+
+def log_ticks(values: Iterable[float]) -> dict[str, Any]:
+    """Tick values and labels of a log axis at 1-2-5 steps per decade spanning ``values``.
+
+    Plotly's default log ticks label the minor steps with their first digit only ("2", "5")
+    between full decade labels, which reads as "2, 100, 5"; every tick here carries its full
+    value ("20", "50", "100").
+    """
+    import math
+
+    v = [float(x) for x in values if x is not None and pd.notna(x) and float(x) > 0]
+    if not v:
+        return {}
+    lo, hi = math.floor(math.log10(min(v))), math.ceil(math.log10(max(v)))
+    ticks = [m * 10.0 ** e for e in range(lo, hi + 1) for m in (1, 2, 5)]
+    ticks = [t for t in ticks if min(v) / 2.5 <= t <= max(v) * 2.5]
+    text = [f"{t:,.0f}" if t >= 1 else f"{t:g}" for t in ticks]
+    return dict(tickmode="array", tickvals=ticks, ticktext=text)
+
+
+def _forecast_to_limit(forecast: pd.DataFrame, econ_limit_rate: float | None) -> pd.DataFrame:
+    """Forecast months for the line: the last month's rate is often a part-month volume over
+    a whole month (the well reaches the limit mid-month), which would draw a vertical drop
+    below the limit; a trailing month below the limit is left off the line (its volume stays
+    in the tables and the EUR)."""
+    f = _positive(forecast, "rate")
+    if econ_limit_rate is None or pd.isna(econ_limit_rate) or f.empty:
+        return f
+    r = pd.to_numeric(f["rate"]).to_numpy(dtype=float)
+    if len(r) > 1 and r[-1] < 0.999 * float(econ_limit_rate):
+        return f.iloc[:-1]
+    return f
+
+
 def rate_time_figure(
     history: pd.DataFrame,
     *,
@@ -176,6 +230,7 @@ def rate_time_figure(
     econ_limit_rate: float | None = None,
     stream: str = "oil",
     title: str | None = None,
+    band: pd.DataFrame | None = None,
 ) -> go.Figure:
     """Rate against time on a log axis.
 
@@ -195,6 +250,10 @@ def rate_time_figure(
     econ_limit_rate : float, optional
         Economic-limit rate drawn as a horizontal line. [bbl/d] or [Mcf/d]
     stream : {"oil", "gas"}
+    band : DataFrame, optional
+        ``month``, ``rate_p90``, ``rate_p50``, ``rate_p10`` [bbl/d]: the probabilistic
+        forecast (:func:`calendar_day_rates` of ``core.probabilistic``'s monthly table),
+        drawn as a shaded P90-P10 band with the P50 line.
     """
     col = "oil_rate_bbl_d" if stream == "oil" else "gas_rate_mcf_d"
     unit = "bbl/d" if stream == "oil" else "Mcf/d"
@@ -220,14 +279,27 @@ def rate_time_figure(
         f = _positive(fitted, "rate")
         fig.trace(x=f["month"], y=f["rate"], mode="lines", name="fitted curve",
                   line=dict(color=PALETTE["fitted"], width=2, dash="dash"))
+    ys = list(actual[col])
+    if band is not None and not band.empty:
+        b = band.loc[pd.to_numeric(band["rate_p10"], errors="coerce").gt(0)]
+        low = pd.to_numeric(b["rate_p90"], errors="coerce").where(lambda x: x > 0)
+        fig.trace(x=b["month"], y=b["rate_p10"], mode="lines", name="P10 (high)", showlegend=False,
+                  line=dict(color=PALETTE["band"], width=0.5), hoverinfo="skip")
+        fig.trace(x=b["month"], y=low, mode="lines", name="P90-P10 range", fill="tonexty",
+                  fillcolor=PALETTE["band_fill"], line=dict(color=PALETTE["band"], width=0.5), connectgaps=False)
+        fig.trace(x=b["month"], y=b["rate_p50"], mode="lines", name="P50",
+                  line=dict(color=PALETTE["band"], width=1.5, dash="dashdot"))
+        ys += list(b["rate_p10"]) + list(low.dropna())
     if forecast is not None and not forecast.empty:
-        f = _positive(forecast, "rate")
+        f = _forecast_to_limit(forecast, econ_limit_rate)
         fig.trace(x=f["month"], y=f["rate"], mode="lines", name="forecast",
                   line=dict(color=PALETTE["forecast"], width=2, dash="dot"))
+        ys += list(f["rate"])
     if econ_limit_rate is not None and pd.notna(econ_limit_rate) and econ_limit_rate > 0:
         fig.hline(float(econ_limit_rate), dict(color=PALETTE["event"], dash="dashdot", width=1),
                   f"economic limit {econ_limit_rate:.3g} {unit}", xanchor="right", x=1.0, yanchor="top")
-    return fig.build(title, yaxis=dict(type="log", title=dict(text=f"{stream} rate [{unit}]")),
+        ys.append(float(econ_limit_rate))
+    return fig.build(title, yaxis=dict(type="log", title=dict(text=f"{stream} rate [{unit}]"), **log_ticks(ys)),
                      xaxis=dict(title=dict(text="month")))
 
 
@@ -318,7 +390,9 @@ def gor_pressure_figure(
         return _empty(title, "No GOR or pressure data to draw")
     fig = _Fig()
     for stage, start, end in periods:
-        fig.vrect(start, end, PALETTE["stage"][stage], PALETTE["stage_tint_opacity"], f"stage {stage}")
+        # stage names along the bottom, event names along the top: they never overlap
+        fig.vrect(start, end, PALETTE["stage"][stage], PALETTE["stage_tint_opacity"], str(stage) if
+                  (pd.Timestamp(end) - pd.Timestamp(start)).days < 400 else f"stage {stage}", at_bottom=True)
     if has_gor:
         g = history.loc[history["gor_scf_stb"].notna()]
         fig.trace(x=g["month"], y=g["gor_scf_stb"], mode="lines+markers", name="producing GOR",
@@ -337,10 +411,11 @@ def gor_pressure_figure(
                       line=dict(color=PALETTE["pressure"], width=2, dash="dot"), yaxis="y2")
     if rsi_scf_stb is not None and pd.notna(rsi_scf_stb):
         fig.hline(float(rsi_scf_stb), dict(color=PALETTE["gor"], dash="dash", width=1),
-                  f"Rsi {rsi_scf_stb:.0f} scf/STB")
+                  f"Rsi {rsi_scf_stb:.0f} scf/STB", xanchor="right", x=1.0)
     if bubble_point_psia is not None and pd.notna(bubble_point_psia):
         fig.hline(float(bubble_point_psia), dict(color=PALETTE["pressure"], dash="dash", width=1),
-                  f"bubble point {bubble_point_psia:.0f} psia", yref="y2", xanchor="right", x=1.0)
+                  f"bubble point {bubble_point_psia:.0f} psia", yref="y2", xanchor="center", x=0.5,
+                  yanchor="top")
     for label, when in (events or {}).items():
         if when is None or pd.isna(when):
             continue
@@ -401,15 +476,30 @@ def planning_status_figure(counts: pd.DataFrame, *, title: str = "Wells by plann
     return fig.build(title, hovermode="closest", showlegend=False, yaxis=dict(title=dict(text="wells")))
 
 
-def field_rate_figure(field: pd.DataFrame, *, title: str = "Field oil rate: history and forecast") -> go.Figure:
+def _band_traces(fig: _Fig, band: pd.DataFrame | None, what: str = "") -> None:
+    """P90-P10 shaded band and P50 line (``month``, ``rate_p90``, ``rate_p50``, ``rate_p10``)."""
+    if band is None or band.empty:
+        return
+    fig.trace(x=band["month"], y=band["rate_p10"], mode="lines", name=f"{what}P10 (high)", showlegend=False,
+              line=dict(color=PALETTE["band"], width=0.5), hoverinfo="skip")
+    fig.trace(x=band["month"], y=band["rate_p90"], mode="lines", name=f"{what}P90-P10 range", fill="tonexty",
+              fillcolor=PALETTE["band_fill"], line=dict(color=PALETTE["band"], width=0.5))
+    fig.trace(x=band["month"], y=band["rate_p50"], mode="lines", name=f"{what}P50",
+              line=dict(color=PALETTE["band"], width=1.5, dash="dashdot"))
+
+
+def field_rate_figure(field: pd.DataFrame, *, title: str = "Field oil rate: history and forecast",
+                      band: pd.DataFrame | None = None) -> go.Figure:
     """Field oil rate, history and forecast, against time.
 
     ``field`` has ``month``, ``kind`` (``actual`` or ``forecast``) and ``oil_rate_bopd``: the
-    field total per month, summed from the batch-run monthly table.
+    field total per month, summed from the batch-run monthly table. ``band`` (optional):
+    the field's P90/P50/P10 per forecast month as rates (:func:`calendar_day_rates`).
     """
     if field is None or field.empty:
         return _empty(title, "No field totals")
     fig = _Fig()
+    _band_traces(fig, band, "field ")
     for kind, colour, dash, name in (
         ("actual", PALETTE["oil"], "solid", "field oil rate, actual"),
         ("forecast", PALETTE["forecast"], "dot", "field oil rate, forecast"),
@@ -421,3 +511,37 @@ def field_rate_figure(field: pd.DataFrame, *, title: str = "Field oil rate: hist
                   line=dict(color=colour, width=2, dash=dash))
     return fig.build(title, yaxis=dict(title=dict(text="oil rate [bbl/d]"), rangemode="tozero"),
                      xaxis=dict(title=dict(text="month")))
+
+
+def type_well_figure(curve: pd.DataFrame, *, fit_label: str = "", title: str = "Type well") -> go.Figure:
+    """A type well: P90 / P50 / P10 rate per aligned month (log axis), the Arps fit of the
+    P50, and the count of wells contributing at each month (bars, right axis).
+
+    ``curve`` has the columns of ``core.type_wells.CURVE_COLUMNS``: ``month_index``,
+    ``n_wells``, ``oil_rate_bbl_d_p90``, ``oil_rate_bbl_d_p50``, ``oil_rate_bbl_d_p10``,
+    ``oil_rate_bbl_d_p50_fit`` [bbl/d].
+    """
+    if curve is None or curve.empty:
+        return _empty(title, "No type well")
+    fig = _Fig()
+    x = curve["month_index"]
+    fig.trace(type="bar", x=x, y=curve["n_wells"], name="wells contributing", yaxis="y2",
+              marker=dict(color="#D9D9D9", line=dict(width=0)), hovertemplate="month %{x}: %{y} wells<extra></extra>")
+    fig.trace(x=x, y=curve["oil_rate_bbl_d_p10"], mode="lines", name="P10 (high)",
+              line=dict(color=PALETTE["band"], width=1.5, dash="dash"))
+    fig.trace(x=x, y=curve["oil_rate_bbl_d_p50"], mode="lines+markers", name="P50",
+              line=dict(color=PALETTE["oil"], width=2), marker=dict(size=4))
+    fig.trace(x=x, y=curve["oil_rate_bbl_d_p90"], mode="lines", name="P90 (low)",
+              line=dict(color=PALETTE["band"], width=1.5, dash="dot"))
+    ys = list(curve["oil_rate_bbl_d_p10"]) + list(curve["oil_rate_bbl_d_p90"])
+    if "oil_rate_bbl_d_p50_fit" in curve and curve["oil_rate_bbl_d_p50_fit"].notna().any():
+        fig.trace(x=x, y=curve["oil_rate_bbl_d_p50_fit"], mode="lines",
+                  name="Arps fit of the P50" + (f" ({fit_label})" if fit_label else ""),
+                  line=dict(color=PALETTE["fitted"], width=2, dash="dash"))
+    return fig.build(
+        title, hovermode="x unified",
+        xaxis=dict(title=dict(text="months since alignment (month 0)")),
+        yaxis=dict(type="log", title=dict(text="oil rate [bbl/d]"), **log_ticks(ys)),
+        yaxis2=dict(title=dict(text="wells contributing"), overlaying="y", side="right", showgrid=False,
+                    rangemode="tozero", range=[0, 3.0 * float(curve["n_wells"].max())]),
+    )

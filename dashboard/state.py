@@ -10,8 +10,10 @@ Caching
 * a load is keyed on the SHA-256 of the file bytes (and of the well-header file), the column
   mapping and the input unit system;
 * a run is keyed on the load key, the run settings and the engineer overrides;
-* an override changes only its own well: the well is re-run alone and spliced into the
-  field's run (see :func:`current_run`), so applying one does not re-fit the field;
+* an override starts from the cached run of the same load and settings: only the wells
+  whose override changed are re-fitted (``core.run.rerun_wells``); a change of the economic
+  limit inputs or the horizon keeps the fits (``core.run.rerun_forecast``). Without those
+  functions in ``core.run`` the whole field is re-run (:func:`current_run`);
 * results are held by ``st.cache_resource`` (no copy on each rerun; pages never modify
   them) with a small ``max_entries`` so memory stays bounded.
 """
@@ -620,11 +622,34 @@ def store_status() -> str:
 
 
 # ---- the run -----------------------------------------------------------------------------------
+#: Settings that change only the forecast and its economics, not the fits or the stages
+#: (``core.run.rerun_forecast`` recomputes the forecast from the kept fits when they change).
+FORECAST_ONLY_SETTINGS = (
+    "econ_limit_bopd", "econ_limit_mcfd", "oil_price", "gas_price", "opex_per_month", "nri", "wi",
+    "severance_tax", "horizon_years",
+)
+
+
+def _settings_key(exclude: Iterable[str] = ()) -> str:
+    s = {k: v for k, v in st.session_state[SETTINGS].items() if k not in set(exclude)}
+    return json.dumps(s, sort_keys=True, default=str)
+
+
 def run_key() -> str | None:
     lk = load_key()
     if lk is None:
         return None
-    return "|".join([lk, json.dumps(st.session_state[SETTINGS], sort_keys=True, default=str),
+    return "|".join([lk, _settings_key(), _override_key(st.session_state[OVERRIDES])])
+
+
+def _base_key() -> str:
+    """Load and settings without the overrides: runs that differ only in overrides."""
+    return "|".join([str(load_key()), _settings_key()])
+
+
+def _fit_key() -> str:
+    """Load, fit-affecting settings and overrides: runs that differ only in forecast settings."""
+    return "|".join([str(load_key()), _settings_key(FORECAST_ONLY_SETTINGS),
                      _override_key(st.session_state[OVERRIDES])])
 
 
@@ -661,13 +686,66 @@ def _runs() -> _LRU:
     return _LRU(RUN_CACHE_SIZE)
 
 
+@st.cache_resource(show_spinner=False)
+def _lineage() -> _LRU:
+    # base key / fit key -> (run key, overrides) of the newest run computed with them: the
+    # starting point of an incremental step (an override, or a forecast-only setting).
+    return _LRU(4 * RUN_CACHE_SIZE)
+
+
 RUN_CACHE_SIZE = 8
+
+#: How the newest run of this session was computed ("full run", "re-run of N wells",
+#: "forecast re-run"), and its wall time [s]; shown by the benchmark and the tests.
+RUN_PATH = "dd_run_path"
 
 
 def _compute_run(load, settings_obj, overrides: dict, progress: Callable | None):
     from core.run import run_field
 
     return run_field(load, settings=settings_obj, overrides=overrides or None, progress=progress)
+
+
+def _override_items(overrides: dict) -> dict[str, str]:
+    return dict(json.loads(_override_key(overrides)))
+
+
+def changed_wells(before: dict, after: dict) -> list[str]:
+    """Wells whose override differs between two override sets (added, removed or changed;
+    reason and author do not count: they do not change the numbers)."""
+    a, b = _override_items(before), _override_items(after)
+    return sorted(w for w in set(a) | set(b) if a.get(w) != b.get(w))
+
+
+def _incremental_run(load, settings_obj, overrides: dict):
+    """The run from a cached one by ``core.run``'s incremental steps, when core has them and a
+    suitable run is cached; else None (the caller runs the whole field).
+
+    * an override set that differs from a cached run's (same load and settings) only for some
+      wells: ``core.run.rerun_wells`` re-fits and re-forecasts those wells;
+    * settings that differ from a cached run's (same load, fit settings and overrides) only
+      in the economic limit inputs or the horizon: ``core.run.rerun_forecast`` keeps the fits
+      and stages and recomputes the forecast.
+    Either gives the numbers of a full ``run_field`` with the same inputs (core's contract).
+    """
+    import core.run as core_run
+
+    cache, lineage = _runs(), _lineage()
+    if hasattr(core_run, "rerun_wells"):
+        hit = lineage.get("base|" + _base_key())
+        prev = None if hit is None else cache.get(hit[0])
+        if prev is not None:
+            wells = changed_wells(hit[1], overrides)
+            if wells:
+                run = core_run.rerun_wells(prev, load, settings=settings_obj, overrides=overrides or None, wells=wells)
+                return run, f"re-run of {len(wells)} well{'s' if len(wells) != 1 else ''}"
+    if hasattr(core_run, "rerun_forecast"):
+        hit = lineage.get("fit|" + _fit_key())
+        prev = None if hit is None else cache.get(hit[0])
+        if prev is not None:
+            run = core_run.rerun_forecast(prev, load, settings=settings_obj, overrides=overrides or None)
+            return run, "forecast re-run"
+    return None
 
 
 def has_run() -> bool:
@@ -686,8 +764,12 @@ def current_run(progress: Callable[[float, str], None] | None = None):
     """The :class:`core.run.RunResult` for the current load, settings and overrides.
 
     Returns None until the user has confirmed the load. Raises :class:`InputError` for a
-    file or setting that cannot be used. Computed once per input change, then cached.
+    file or setting that cannot be used. Computed once per input change, then cached; an
+    override or a forecast-only setting change starts from the cached run through core's
+    incremental steps when core has them (:func:`_incremental_run`).
     """
+    import time
+
     if not is_confirmed():
         return None
     key = run_key()
@@ -697,9 +779,195 @@ def current_run(progress: Callable[[float, str], None] | None = None):
         return run
     load = current_load()
     ss = st.session_state
-    run = _compute_run(load, _settings_obj(), dict(ss[OVERRIDES]), progress)
+    overrides = dict(ss[OVERRIDES])
+    settings_obj = _settings_obj()
+    t0 = time.perf_counter()
+    step = _incremental_run(load, settings_obj, overrides)
+    if step is None:
+        run, path = _compute_run(load, settings_obj, overrides, progress), "full run"
+    else:
+        run, path = step
+    ss[RUN_PATH] = (path, time.perf_counter() - t0)
     cache.put(key, run)
+    lineage = _lineage()
+    lineage.put("base|" + _base_key(), (key, overrides))
+    lineage.put("fit|" + _fit_key(), (key, overrides))
     return run
+
+
+# ---- probabilistic forecasts (P90 / P50 / P10) ----------------------------------------------------
+PROB_SAMPLES = "dd_prob_samples"  # bootstrap samples per well; 0 = probabilistic forecasts off
+PROB_SEED = "dd_prob_seed"
+#: Default samples: 0 (off), so the first pages stay fast; the Settings page turns them on.
+DEFAULT_PROB_SAMPLES = 0
+#: Samples the Settings page suggests when they are turned on (core's default).
+SUGGESTED_PROB_SAMPLES = 200
+#: Fewest samples core accepts (``core.probabilistic.probabilistic_field``).
+MIN_PROB_SAMPLES = 20
+
+PROB_WORDING = (
+    "P90 is the low estimate (90 % probability of exceeding it), P50 the median, P10 the high "
+    "estimate (10 % probability of exceeding it)."
+)
+
+
+def prob_settings() -> tuple[int, int]:
+    """(samples, seed) of the probabilistic forecast; samples 0 = off."""
+    ss = st.session_state
+    return int(ss.get(PROB_SAMPLES, DEFAULT_PROB_SAMPLES)), int(ss.get(PROB_SEED, 0))
+
+
+def apply_prob_settings(samples: int, seed: int) -> None:
+    """Set the probabilistic samples (0 = off, else at least core's minimum) and the seed."""
+    samples, seed = int(samples), int(seed)
+    if samples != 0 and samples < MIN_PROB_SAMPLES:
+        raise InputError(f"probabilistic samples must be 0 (off) or at least {MIN_PROB_SAMPLES}, got {samples}")
+    if seed < 0:
+        raise InputError(f"the seed must be a whole number >= 0, got {seed}")
+    st.session_state[PROB_SAMPLES] = samples
+    st.session_state[PROB_SEED] = seed
+
+
+def prob_key() -> str | None:
+    samples, seed = prob_settings()
+    rk = run_key()
+    return None if rk is None or samples == 0 else f"{rk}|samples={samples}|seed={seed}"
+
+
+@st.cache_resource(show_spinner=False)
+def _probs() -> _LRU:
+    return _LRU(4)
+
+
+def cached_probabilistic(run):
+    """The P90/P50/P10 result of the current run when computed (never computes), else None."""
+    key = prob_key()
+    if key is None:
+        return None
+    own = getattr(run, "probabilistic", None)  # a run that carries its own (core may add it)
+    if own is not None and getattr(own, "samples", None) == prob_settings()[0]:
+        return own
+    return _probs().get(key)
+
+
+def compute_probabilistic(run, progress: Callable[[float, str], None] | None = None):
+    """``core.probabilistic.probabilistic_field`` for the current run, cached on the run key,
+    the samples and the seed.
+
+    Same inputs as the run: the loader's table cut at the run's as-of month, the run's fit
+    table, the decline settings the run used (``core.run.decline_settings``), its overrides
+    and the stage tracker's regime starts. The level error is measured first by
+    ``core.probabilistic.calibrate_level_error`` (what ``level_error="auto"`` does inside
+    ``probabilistic_field``; called apart only to report progress).
+    """
+    from core.probabilistic import calibrate_level_error, probabilistic_field
+    from core.run import decline_settings
+
+    key = prob_key()
+    if key is None:
+        return None
+    hit = cached_probabilistic(run)
+    if hit is not None:
+        return hit
+    samples, seed = prob_settings()
+    prog = progress or (lambda f, m: None)
+    prod = current_load().production
+    if run.as_of is not None:
+        prod = prod[prod["month"] <= pd.Timestamp(run.as_of)]
+    dsettings = decline_settings(run.settings)
+    regime = run.stages.set_index("well_id")["regime_start"] if "regime_start" in run.stages else None
+    overrides = dict(st.session_state[OVERRIDES]) or None
+    prog(0.05, "measuring the level error by a hindcast of the last 24 months")
+    cal = calibrate_level_error(prod, settings=dsettings, seed=seed, regime_start=regime, overrides=overrides)
+    prog(0.45, f"bootstrapping {len(run.wells):,} wells x {samples} samples")
+    res = probabilistic_field(prod, run.fits, settings=dsettings, samples=samples, seed=seed, as_of=run.as_of,
+                              overrides=overrides, level_error=cal, regime_start=regime)
+    prog(1.0, "P90/P50/P10 computed")
+    _probs().put(key, res)
+    return res
+
+
+def probabilistic_controls(run, *, where: str):
+    """The page's P90/P50/P10 control: off (a note), not yet computed (a button), or the
+    result. Returns the :class:`core.probabilistic.ProbabilisticResult` or None."""
+    samples, seed = prob_settings()
+    if samples == 0:
+        st.caption("Probabilistic forecasts (P90/P50/P10) are off: set the number of samples on the Settings page.")
+        return None
+    res = cached_probabilistic(run)
+    if res is not None:
+        return res
+    n = len(run.wells)
+    if st.button(f"Compute P90/P50/P10 ({n:,} wells x {samples} samples)", key=f"prob_compute_{where}"):
+        bar = st.progress(0.0, text="Probabilistic forecast")
+        try:
+            res = compute_probabilistic(run, progress=lambda f, m: bar.progress(min(max(float(f), 0.0), 1.0), text=m))
+        except ValueError as exc:
+            bar.empty()
+            st.error(f"The probabilistic forecast could not be computed: {exc}")
+            return None
+        bar.empty()
+        return res
+    st.caption(f"Moving-block bootstrap of each well's decline fit with a hindcast-measured level error "
+               f"(core.probabilistic); {PROB_WORDING}")
+    return None
+
+
+PROB_WELL_COLUMNS = [
+    "eur_oil_bbl_p90", "eur_oil_bbl_p50", "eur_oil_bbl_p10",
+    "remaining_oil_bbl_p90", "remaining_oil_bbl_p50", "remaining_oil_bbl_p10",
+    "econ_limit_date_p90", "econ_limit_date_p50", "econ_limit_date_p10",
+]
+
+
+def prob_well_row(prob, well_id: str) -> pd.Series | None:
+    """The well's row of ``ProbabilisticResult.wells`` (None when not there)."""
+    if prob is None:
+        return None
+    w = prob.wells
+    hit = w.loc[w["well_id"].astype(str) == str(well_id)]
+    return None if hit.empty else hit.iloc[0]
+
+
+def prob_well_band(prob, well_id: str) -> pd.DataFrame | None:
+    """The well's P90/P50/P10 forecast months as calendar-day rates [bbl/d] (``month``,
+    ``rate_p90``, ``rate_p50``, ``rate_p10``), or None."""
+    from dashboard.charts import calendar_day_rates
+
+    if prob is None or prob.monthly.empty:
+        return None
+    m = prob.monthly
+    return calendar_day_rates(m.loc[m["well_id"].astype(str) == str(well_id)])
+
+
+def prob_field_band(prob) -> pd.DataFrame | None:
+    """The field's P90/P50/P10 oil per forecast month (sample-wise sums over wells) as
+    calendar-day rates [bbl/d], or None."""
+    from dashboard.charts import calendar_day_rates
+
+    if prob is None or prob.field_monthly.empty:
+        return None
+    return calendar_day_rates(prob.field_monthly)
+
+
+def prob_field_totals(prob) -> pd.DataFrame:
+    """Field totals of ``ProbabilisticResult.field``: ``quantity``, ``p90``, ``p50``, ``p10``,
+    ``mean`` [bbl], and the method in words."""
+    return prob.field
+
+
+def prob_column_config() -> dict:
+    """Column labels of the P90/P50/P10 columns of the well table."""
+    out = {}
+    for q, name in (("eur_oil_bbl", "EUR"), ("remaining_oil_bbl", "remaining")):
+        for p, word in (("p90", "P90 low"), ("p50", "P50"), ("p10", "P10 high")):
+            out[f"{q}_{p}"] = st.column_config.NumberColumn(f"{name} {word} [bbl]", format="localized")
+    return out
+
+
+def prob_range_text(low: Any, mid: Any, high: Any, fmt: str = "{:,.0f}") -> str:
+    """'P90 / P50 / P10' values as one line."""
+    return " / ".join(number_text(v, fmt) for v in (low, mid, high))
 
 
 # ---- views of a run (cached on the run key) -----------------------------------------------------
@@ -738,10 +1006,19 @@ WELL_TABLE_COLUMNS = [
 ]
 
 
+PROB_TABLE_COLUMNS = ["eur_oil_bbl_p90", "eur_oil_bbl_p50", "eur_oil_bbl_p10",
+                      "remaining_oil_bbl_p90", "remaining_oil_bbl_p50", "remaining_oil_bbl_p10"]
+
+
 def well_table(run, *, units: Iterable[str] = (), stages: Iterable[Any] = (), statuses: Iterable[str] = (),
-               fluids: Iterable[str] = (), search: str = "") -> pd.DataFrame:
-    """The well table, filtered by unit, stage, planning status, fluid type and well name."""
+               fluids: Iterable[str] = (), search: str = "", prob=None) -> pd.DataFrame:
+    """The well table, filtered by unit, stage, planning status, fluid type and well name;
+    with ``prob`` (a ``ProbabilisticResult``), EUR and remaining P90/P50/P10 after the EUR."""
     w = run.wells
+    if prob is not None:
+        p = prob.wells.assign(well_id=prob.wells["well_id"].astype(str)).drop_duplicates("well_id").set_index("well_id")
+        ids = w["well_id"].astype(str)
+        w = w.assign(**{c: ids.map(p[c]).to_numpy(dtype=float) for c in PROB_TABLE_COLUMNS})
     keep = pd.Series(True, index=w.index)
     units, stages, statuses, fluids = list(units), list(stages), list(statuses), list(fluids)
     if units:
@@ -756,6 +1033,9 @@ def well_table(run, *, units: Iterable[str] = (), stages: Iterable[Any] = (), st
     if search:
         keep &= w["well_id"].astype(str).str.contains(search, case=False, regex=False)
     cols = [c for c in WELL_TABLE_COLUMNS if c in w]
+    if prob is not None:
+        at = cols.index("eur_oil_bbl") + 1 if "eur_oil_bbl" in cols else len(cols)
+        cols[at:at] = [c for c in PROB_TABLE_COLUMNS if c in w]
     return w.loc[keep, cols].reset_index(drop=True)
 
 
@@ -1318,3 +1598,62 @@ def changes_since_saved(run) -> dict[str, Any] | None:
         "wells": wells.loc[wells["any_change"]].reset_index(drop=True),
         "units": units,
     }
+
+
+# ---- type wells (core.type_wells) --------------------------------------------------------------
+TYPE_WELL_ALIGN = {"first_production": "first month with oil", "peak": "peak month (3-month running median)"}
+TYPE_WELL_BASIS = {"producing_day": "per producing day", "calendar_day": "per calendar day"}
+
+
+@st.cache_resource(show_spinner=False)
+def _type_well_cache() -> _LRU:
+    return _LRU(16)
+
+
+def type_wells(run, *, by: str, unit: str | None = None, wells: Iterable[str] = (), align: str = "first_production",
+               normalize_peak: bool = False, rate_basis: str = "producing_day", min_wells: int = 5) -> dict[str, Any]:
+    """Type wells from ``core.type_wells`` on the loaded history up to the run's as-of month.
+
+    ``by="unit"``: one type well per reservoir unit (``type_wells_by_unit``); ``by="selection"``:
+    one type well of the chosen wells (``type_well``). Returns name -> ``TypeWell``; raises
+    :class:`InputError` with core's message when no type well can be built. Cached per input.
+    """
+    from core.type_wells import type_well, type_wells_by_unit
+
+    sel = tuple(sorted(map(str, wells)))
+    key = json.dumps([load_key(), month_text(run.as_of), by, sel, align, normalize_peak, rate_basis, int(min_wells),
+                      float(run.settings.b_max)])
+    cache = _type_well_cache()
+    hit = cache.get(key)
+    if hit is not None:
+        return hit
+    prod = current_load().production
+    if run.as_of is not None:
+        prod = prod[prod["month"] <= pd.Timestamp(run.as_of)]
+    kw = dict(align=align, normalize="peak_rate" if normalize_peak else None, rate_basis=rate_basis,
+              min_wells=int(min_wells), b_max=float(run.settings.b_max))
+    if by == "unit":
+        out = type_wells_by_unit(prod, **kw)
+        if not out:
+            raise InputError(f"no reservoir unit has a month with {int(min_wells)} or more producing wells")
+    else:
+        if not sel:
+            raise InputError("pick the wells of the type well")
+        out = {"selection": type_well(prod, wells=sel, name="selection", **kw)}
+    cache.put(key, out)
+    return out
+
+
+def type_well_fit_text(tw) -> str:
+    """The Arps fit of a type well's P50 in one line."""
+    f = tw.fit
+    if not getattr(f, "model", ""):
+        return "not fitted"
+    return f"{f.model}, qi {f.qi:,.1f} bbl/d, di {f.di:.3f} 1/yr nominal, b {f.b:.2f}"
+
+
+def type_well_csv(tws: dict[str, Any]) -> bytes:
+    """The type wells' export table as CSV (``core.type_wells.type_well_to_csv``)."""
+    from core.type_wells import type_well_to_csv
+
+    return type_well_to_csv(list(tws.values())).encode("utf-8")

@@ -190,9 +190,69 @@ def test_field_rate_figure_splits_actual_and_forecast():
         lambda: charts.planning_status_figure(pd.DataFrame()),
         lambda: charts.field_rate_figure(pd.DataFrame()),
         lambda: charts.gor_pressure_figure(pd.DataFrame({"month": [], "gor_scf_stb": []})),
+        lambda: charts.type_well_figure(pd.DataFrame()),
     ],
 )
 def test_empty_inputs_give_a_message_not_an_error(builder):
     fig = builder()
     assert len(fig.data) == 0
     assert fig.layout.annotations[0].text.startswith("No ")
+
+
+def test_calendar_day_rates_divide_by_the_days_of_each_month():
+    # Calendar identity: January has 31 days, February 2024 29 (leap year), April 30.
+    m = pd.DataFrame({"month": pd.to_datetime(["2025-01-01", "2024-02-01", "2025-04-01"]),
+                      "oil_bbl_p90": [3100.0, 290.0, 0.0], "oil_bbl_p50": [6200.0, 580.0, 30.0],
+                      "oil_bbl_p10": [9300.0, 870.0, 60.0]})
+    r = charts.calendar_day_rates(m)
+    assert list(r["rate_p90"]) == [100.0, 10.0, 0.0]
+    assert list(r["rate_p50"]) == [200.0, 20.0, 1.0]
+    assert list(r["rate_p10"]) == [300.0, 30.0, 2.0]
+
+
+def test_log_ticks_carry_full_values_at_1_2_5_steps():
+    t = charts.log_ticks([1.2, 130.0])
+    # 1-2-5 steps per decade (common practice for log scales), every label the full number
+    assert [1.0, 2.0, 5.0, 10.0, 20.0, 50.0, 100.0, 200.0] == t["tickvals"]
+    assert t["ticktext"] == ["1", "2", "5", "10", "20", "50", "100", "200"]
+    assert charts.log_ticks([]) == {}
+    fig = charts.rate_time_figure(_history())
+    assert fig.layout.yaxis.tickmode == "array" and all(not str(x).startswith("2,") for x in fig.layout.yaxis.ticktext)
+
+
+def test_rate_time_figure_band_and_the_forecast_ends_at_the_limit():
+    h = _history()
+    fc = pd.DataFrame({"month": pd.date_range("2021-01-01", periods=4, freq="MS"),
+                       "rate": [40.0, 30.0, 20.0, 3.0]})  # last month: a part month below the limit
+    band = pd.DataFrame({"month": fc["month"], "rate_p90": [30.0, 20.0, 0.0, 0.0],
+                         "rate_p50": [40.0, 30.0, 20.0, 0.0], "rate_p10": [50.0, 40.0, 30.0, 10.0]})
+    fig = charts.rate_time_figure(h, forecast=fc, econ_limit_rate=10.0, band=band)
+    assert list(_trace(fig, "forecast").y) == [40.0, 30.0, 20.0]
+    low = _trace(fig, "P90-P10 range")
+    assert low.fill == "tonexty"
+    assert list(low.y[:2]) == [30.0, 20.0] and all(np.isnan(v) for v in low.y[2:])  # zero: not on a log axis
+    assert list(_trace(fig, "P50").y)[:3] == [40.0, 30.0, 20.0]
+    # without a limit the forecast is drawn whole
+    assert len(_trace(charts.rate_time_figure(h, forecast=fc), "forecast").y) == 4
+
+
+def test_field_rate_figure_draws_the_field_band():
+    field = pd.DataFrame({"month": pd.date_range("2020-01-01", periods=2, freq="MS"), "kind": ["actual", "forecast"],
+                          "oil_rate_bopd": [9.0, 8.0]})
+    band = pd.DataFrame({"month": field["month"], "rate_p90": [7.0, 6.0], "rate_p50": [8.0, 7.0], "rate_p10": [9.0, 8.0]})
+    fig = charts.field_rate_figure(field, band=band)
+    assert list(_trace(fig, "field P90-P10 range").y) == [7.0, 6.0]
+
+
+def test_type_well_figure_draws_percentiles_counts_and_fit():
+    curve = pd.DataFrame({"month_index": [0, 1, 2], "n_wells": [9, 8, 6],
+                          "oil_rate_bbl_d_p90": [50.0, 40.0, 30.0], "oil_rate_bbl_d_p50": [100.0, 80.0, 60.0],
+                          "oil_rate_bbl_d_p10": [200.0, 150.0, 120.0], "oil_rate_bbl_d_mean": [110.0, 90.0, 70.0],
+                          "oil_rate_bbl_d_p50_fit": [98.0, 81.0, 61.0]})
+    fig = charts.type_well_figure(curve, fit_label="hyperbolic")
+    assert list(_trace(fig, "wells contributing").y) == [9, 8, 6]
+    assert _trace(fig, "wells contributing").yaxis == "y2"
+    assert list(_trace(fig, "P90 (low)").y) == [50.0, 40.0, 30.0]
+    assert list(_trace(fig, "P10 (high)").y) == [200.0, 150.0, 120.0]
+    assert list(_trace(fig, "Arps fit of the P50 (hyperbolic)").y) == [98.0, 81.0, 61.0]
+    assert fig.layout.yaxis.type == "log"

@@ -92,6 +92,17 @@ def _bbl(x: float) -> str:
     return f"{x:,.0f} bbl"
 
 
+def _values(v):
+    """Numbers of a plotly JSON array (a list, or a typed array {"dtype", "bdata"} in base64)."""
+    import base64
+
+    import numpy as np
+
+    if isinstance(v, dict) and "bdata" in v:
+        return np.frombuffer(base64.b64decode(v["bdata"]), dtype=np.dtype(v["dtype"])).astype(float)
+    return np.asarray([np.nan if x is None else x for x in v], dtype=float)
+
+
 def _ok(at: AppTest) -> None:
     assert not at.exception, [e.value for e in at.exception]
     assert not at.error, [e.value for e in at.error]
@@ -400,3 +411,153 @@ def test_fit_window_and_excluded_months_override_equals_core_then_removal(sample
     assert _metric(at, "EUR oil") == _bbl(run.wells.set_index("well_id").loc[well, "eur_oil_bbl"])
     log = at.dataframe[-1].value
     assert "cleared" in set(log["entry_type"])
+
+
+# ---- probabilistic forecasts, type wells, incremental re-runs ------------------------------------
+APPLY_SETTINGS_KEY = APPLY_SETTINGS
+
+
+def test_probabilistic_forecast_is_off_by_default_then_equals_core(sample_run):
+    """P90/P50/P10 shown on the overview and the well page equal core.probabilistic_field on the
+    run's own inputs (level error "auto"), the band equals core's monthly volumes over the days
+    of each month, and the field totals are core's sample-wise sums (not sums of percentiles)."""
+    from core.probabilistic import probabilistic_field
+    from core.run import decline_settings
+
+    load, run = sample_run
+    at = _app()
+    at.switch_page("pages/overview.py").run()
+    _ok(at)
+    assert not [b for b in at.button if b.key == "prob_compute_overview"]  # off by default
+    assert any("Probabilistic forecasts (P90/P50/P10) are off" in c.value for c in at.caption)
+    at.switch_page("pages/settings.py").run()
+    at.number_input(key="set_samples").set_value(40)
+    at.button(key=APPLY_SETTINGS).click().run()
+    _ok(at)
+    at.switch_page("pages/overview.py").run()
+    at.button(key="prob_compute_overview").click().run()
+    _ok(at)
+    prod = load.production[load.production["month"] <= run.as_of]
+    expected = probabilistic_field(
+        prod, run.fits, settings=decline_settings(run.settings), samples=40, seed=0, as_of=run.as_of,
+        level_error="auto", regime_start=run.stages.set_index("well_id")["regime_start"])
+    f = expected.field.set_index("quantity")
+    rem = f.loc["remaining_oil_bbl"]
+    assert _metric(at, "Remaining oil, P90 / P50 / P10") == f"{rem['p90']:,.0f} / {rem['p50']:,.0f} / {rem['p10']:,.0f} bbl"
+    # The field P50 is the median of the sample-wise sums, not the sum of the wells' P50s.
+    assert rem["p50"] != pytest.approx(expected.wells["remaining_oil_bbl_p50"].sum(), rel=1e-9)
+    table = at.dataframe[0].value.merge(expected.wells, on="well_id", suffixes=("_shown", "_core"))
+    pd.testing.assert_series_equal(table["eur_oil_bbl_p50_shown"], table["eur_oil_bbl_p50_core"], check_names=False)
+    # Well page: the well's ranges and the band on its rate chart.
+    at.switch_page("pages/well.py").run()
+    _ok(at)
+    well = at.selectbox(key="well_pick").value
+    w = expected.wells.set_index("well_id").loc[well]
+    assert _metric(at, "EUR oil, P90 / P50 / P10") == (
+        f"{w['eur_oil_bbl_p90']:,.0f} / {w['eur_oil_bbl_p50']:,.0f} / {w['eur_oil_bbl_p10']:,.0f} bbl")
+    # Reserves convention (SPE-PRMS 2018): P90 low <= P50 <= P10 high.
+    assert w["eur_oil_bbl_p90"] <= w["eur_oil_bbl_p50"] <= w["eur_oil_bbl_p10"]
+    chart = json.loads(at.get("plotly_chart")[0].proto.spec)
+    band = next(t for t in chart["data"] if t.get("name") == "P90-P10 range")
+    m = expected.monthly.loc[expected.monthly["well_id"] == well]
+    days = m["month"].dt.days_in_month.to_numpy(float)
+    shown = _values(band["y"])
+    want = m["oil_bbl_p90"].to_numpy() / days
+    assert len(shown) == len(m)
+    # a P90 of zero (the low case already at its limit) cannot be drawn on a log axis: a gap
+    assert shown[want > 0] == pytest.approx(want[want > 0], rel=1e-12)
+    assert pd.isna(shown[want <= 0]).all()
+
+
+def test_type_wells_page_equals_core_and_downloads(sample_run):
+    from core.type_wells import type_well, type_wells_by_unit
+
+    load, run = sample_run
+    at = _app()
+    at.switch_page("pages/type_wells.py").run()
+    _ok(at)
+    expected = type_wells_by_unit(load.production, align="first_production", min_wells=5, b_max=run.settings.b_max)
+    first = list(expected)[0]
+    assert _metric(at, "Wells") == f"{len(expected[first].wells):,}"
+    curve = at.dataframe[0].value
+    pd.testing.assert_frame_equal(curve.reset_index(drop=True), expected[first].curve.reset_index(drop=True))
+    chart = json.loads(at.get("plotly_chart")[0].proto.spec)
+    assert {"P90 (low)", "P50", "P10 (high)", "wells contributing"} <= {t.get("name") for t in chart["data"]}
+    assert any(str(t.get("name", "")).startswith("Arps fit of the P50") for t in chart["data"])
+    assert {b.proto.label for b in at.get("download_button")} >= {"Download the type wells (CSV)"}
+    # A user selection aligned at the peak and normalised by peak rate.
+    ids = sorted(run.wells["well_id"].astype(str))[:8]
+    at.radio(key="tw_by").set_value("selection").run()
+    at.multiselect(key="tw_wells").set_value(ids).run()
+    at.radio(key="tw_align").set_value("peak").run()
+    at.checkbox(key="tw_normalize").check().run()
+    _ok(at)
+    exp = type_well(load.production, wells=ids, align="peak", normalize="peak_rate", min_wells=5,
+                    b_max=run.settings.b_max)
+    pd.testing.assert_frame_equal(at.dataframe[0].value.reset_index(drop=True), exp.curve.reset_index(drop=True))
+
+
+def test_override_goes_through_core_rerun_wells_when_core_has_it(sample_run, monkeypatch):
+    """With ``core.run.rerun_wells`` present, an override re-runs only its well from the cached
+    full run; the numbers shown equal a full run_field with the same override (here the
+    stand-in for rerun_wells is run_field itself: the test checks the dashboard's wiring)."""
+    import core.run
+
+    load, run = sample_run
+    calls = []
+
+    def rerun_wells(previous, load_, *, settings, overrides, wells):
+        calls.append((previous, dict(overrides or {}), list(wells)))
+        return run_field(load_, settings=settings, overrides=overrides)
+
+    monkeypatch.setattr(core.run, "rerun_wells", rerun_wells, raising=False)
+    at = _app()
+    at.switch_page("pages/well.py").run()
+    well = at.selectbox(key="well_pick").value
+    at.checkbox(key="ov_fix_b").check()
+    at.number_input(key="ov_b").set_value(0.45)
+    at.text_input(key="ov_reason").input("analogue b")
+    at.button(key=APPLY_OVERRIDE).click().run()
+    _ok(at)
+    assert len(calls) == 1
+    previous, overrides, wells = calls[0]
+    assert wells == [well] and overrides[well].b == 0.45
+    # the starting point is a cached run of the same field and settings (the newest one)
+    assert list(previous.wells["well_id"]) == list(run.wells["well_id"])
+    assert "0.45" not in str(previous.wells.set_index("well_id").loc[well, "override"])
+    assert at.session_state["dd_run_path"][0] == "re-run of 1 well"
+    expected = run_field(load, settings=RunSettings(), overrides={well: WellOverride(b=0.45, reason="x")})
+    row = expected.wells.set_index("well_id").loc[well]
+    assert _metric(at, "b") == f"{row['b']:.2f}"
+    assert _metric(at, "EUR oil") == _bbl(row["eur_oil_bbl"])
+
+
+def test_forecast_only_setting_goes_through_core_rerun_forecast(sample_run, monkeypatch):
+    import core.run
+
+    load, _ = sample_run
+    calls = []
+
+    def rerun_forecast(previous, load_, *, settings, overrides=None):
+        calls.append((previous.settings, settings))
+        return run_field(load_, settings=settings, overrides=overrides)
+
+    monkeypatch.setattr(core.run, "rerun_forecast", rerun_forecast, raising=False)
+    at = _app()
+    at.switch_page("pages/overview.py").run()
+    at.switch_page("pages/settings.py").run()
+    at.number_input(key="set_econ_limit").set_value(3.25)
+    at.button(key=APPLY_SETTINGS).click().run()
+    at.switch_page("pages/overview.py").run()
+    _ok(at)
+    assert len(calls) == 1 and calls[0][1].econ_limit_bopd == 3.25
+    expected = run_field(load, settings=RunSettings(econ_limit_bopd=3.25))
+    assert _metric(at, "EUR oil") == _bbl(expected.wells["eur_oil_bbl"].sum())
+    # b max changes the fits: a full run, not a forecast re-run.
+    at.switch_page("pages/settings.py").run()
+    at.number_input(key="set_b_max").set_value(1.5)
+    at.button(key=APPLY_SETTINGS).click().run()
+    at.switch_page("pages/overview.py").run()
+    _ok(at)
+    assert len(calls) == 1
+    assert at.session_state["dd_run_path"][0] == "full run"

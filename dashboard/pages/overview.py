@@ -19,12 +19,28 @@ low[0].metric("Cumulative oil", f"{h['cum_oil_bbl']:,.0f} bbl")
 low[1].metric("Remaining oil", f"{h['remaining_oil_bbl']:,.0f} bbl", help="To each well's economic limit.")
 low[2].metric("EUR oil", f"{h['eur_oil_bbl']:,.0f} bbl")
 
+st.markdown("**Probabilistic forecast**")
+prob = state.probabilistic_controls(run, where="overview")
+if prob is not None:
+    totals = state.prob_field_totals(prob).set_index("quantity")
+    pc = st.columns(2)
+    for col, (q, label) in zip(pc, (("remaining_oil_bbl", "Remaining oil, P90 / P50 / P10"),
+                                     ("eur_oil_bbl", "EUR oil, P90 / P50 / P10"))):
+        if q in totals.index:
+            r = totals.loc[q]
+            col.metric(label, state.prob_range_text(r["p90"], r["p50"], r["p10"]) + " bbl",
+                       help=f"Mean {r['mean']:,.0f} bbl over {int(r['n_samples'])} samples of {int(r['n_wells'])} wells.")
+    st.caption(f"Field totals: {totals['method'].iloc[0]}. They are not sums of the wells' percentiles "
+               f"(P90s do not add). {state.PROB_WORDING}")
+    for message in prob.messages:
+        st.caption(message)
+
 left, right = st.columns(2)
 with left:
     st.plotly_chart(charts.planning_status_figure(state.planning_counts(run)), key="chart_planning")
 with right:
     st.plotly_chart(charts.stage_share_figure(run.units), key="chart_stage_share")
-st.plotly_chart(charts.field_rate_figure(state.field_totals(run)), key="chart_field")
+st.plotly_chart(charts.field_rate_figure(state.field_totals(run), band=state.prob_field_band(prob)), key="chart_field")
 
 st.subheader("Wells")
 w = run.wells
@@ -34,7 +50,7 @@ stages = f2.multiselect("Stage", ["1", "2", "3", "4", "n/a"], key="filter_stage"
 statuses = f3.multiselect("Planning status", sorted(w["planning_status"].dropna().unique()), key="filter_status")
 fluids = f4.multiselect("Fluid type", sorted(w["fluid_type"].dropna().unique()), key="filter_fluid")
 search = f5.text_input("Well name contains", key="filter_search")
-table = state.well_table(run, units=units, stages=stages, statuses=statuses, fluids=fluids, search=search)
+table = state.well_table(run, units=units, stages=stages, statuses=statuses, fluids=fluids, search=search, prob=prob)
 st.caption(f"{len(table):,} of {len(w):,} wells. Click a column header to sort; pick a row to open the well.")
 picked = st.dataframe(
     table,
@@ -49,6 +65,7 @@ picked = st.dataframe(
         "cum_oil_bbl": st.column_config.NumberColumn("cum oil [bbl]", format="localized"),
         "remaining_oil_bbl": st.column_config.NumberColumn("remaining [bbl]", format="localized"),
         "eur_oil_bbl": st.column_config.NumberColumn("EUR [bbl]", format="localized"),
+        **state.prob_column_config(),
         "econ_limit_date": st.column_config.DateColumn("econ-limit month", format="YYYY-MM"),
         "fit_rmse_log": st.column_config.NumberColumn("fit RMSE (ln rate)", format="%.3f"),
     },

@@ -37,6 +37,17 @@ with st.form("settings_form"):
     horizon = j.number_input("Forecast horizon cap [yr]", min_value=1.0, max_value=200.0, value=float(s["horizon_years"]),
                              key="set_horizon")
     as_of = k.text_input("As-of month (YYYY-MM, blank = last month in the data)", value=s.get("as_of") or "", key="set_as_of")
+    st.markdown("**Probabilistic forecast (P90 / P50 / P10)**")
+    samples_now, seed_now = state.prob_settings()
+    p1, p2 = st.columns(2)
+    samples = p1.number_input(
+        "Samples per well (0 = off)", min_value=0, max_value=100_000, value=samples_now, step=50, key="set_samples",
+        help=f"Off by default so the first pages stay fast. {state.SUGGESTED_PROB_SAMPLES} is a usual choice "
+        f"(at least {state.MIN_PROB_SAMPLES}); the P90/P50/P10 are computed when asked for on the Field "
+        "overview or Well review page.",
+    )
+    seed = p2.number_input("Seed", min_value=0, max_value=2**31 - 1, value=seed_now, step=1, key="set_seed",
+                           help="The same seed gives the same samples.")
     st.markdown("**Input file**")
     units = st.radio("Units of the input file", ["field", "metric"], index=0 if s.get("units", "field") == "field" else 1,
                      key="set_units", horizontal=True, help="Outputs are always in field units.")
@@ -49,9 +60,11 @@ if applied:
     )
     try:
         state.apply_settings(values)
+        state.apply_prob_settings(samples, seed)
     except InputError as exc:
         st.error(str(exc))
     else:
         st.success("Settings applied. The forecast is re-run with them on the next page you open.")
 st.caption(state.settings_note())
-st.json(state.settings(), expanded=False)
+st.json({**state.settings(), "probabilistic_samples": state.prob_settings()[0],
+         "probabilistic_seed": state.prob_settings()[1]}, expanded=False)

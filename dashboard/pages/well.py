@@ -31,6 +31,18 @@ c[0].metric("EUR oil", "" if pd.isna(row["eur_oil_bbl"]) else f"{row['eur_oil_bb
 c[1].metric("Remaining oil", "" if pd.isna(row["remaining_oil_bbl"]) else f"{row['remaining_oil_bbl']:,.0f} bbl")
 c[2].metric("Economic-limit month", state.month_text(row["econ_limit_date"]) or "n/a")
 c[3].metric("Cumulative oil", "" if pd.isna(row["cum_oil_bbl"]) else f"{row['cum_oil_bbl']:,.0f} bbl")
+prob = state.probabilistic_controls(run, where="well")
+prow = state.prob_well_row(prob, well)
+if prow is not None:
+    c = st.columns(3)
+    c[0].metric("EUR oil, P90 / P50 / P10", state.prob_range_text(
+        prow["eur_oil_bbl_p90"], prow["eur_oil_bbl_p50"], prow["eur_oil_bbl_p10"]) + " bbl")
+    c[1].metric("Remaining oil, P90 / P50 / P10", state.prob_range_text(
+        prow["remaining_oil_bbl_p90"], prow["remaining_oil_bbl_p50"], prow["remaining_oil_bbl_p10"]) + " bbl")
+    c[2].metric("Economic-limit month, P90 / P50 / P10", " / ".join(
+        state.month_text(prow[f"econ_limit_date_{p}"]) or "beyond horizon" for p in ("p90", "p50", "p10")))
+    st.caption(f"{state.text(prow['prob_method'])}; {prob.samples} samples, seed {prob.seed}. {state.PROB_WORDING} "
+               "The P90 economic-limit month is the early one.")
 st.caption(
     f"Unit {row['unit']} · fluid {row['fluid_type']} · planning status "
     f"{charts.PLANNING_LABELS.get(row['planning_status'], row['planning_status'])}"
@@ -45,6 +57,7 @@ st.plotly_chart(
         excluded_months=state.excluded_months(run, well),
         fit_window=(row["fit_start"], row["fit_end"]),
         econ_limit_rate=row["econ_limit_bopd"],
+        band=state.prob_well_band(prob, well),
         title=f"{well}: oil rate, fit and forecast",
     ),
     key="chart_rate_time",
