@@ -732,8 +732,23 @@ def _analyse(months: pd.DataFrame, surveys: pd.DataFrame, cumtab: pd.DataFrame, 
             remap[keep] = np.arange(keep.size)
             codes = np.where(codes >= 0, remap[np.maximum(codes, 0)], -1)
             uniq = [uniq[k] for k in keep]
+        sv_m = None
+        if MB_USE_SURVEYS:
+            s_ = surveys[surveys["sid"].isin(sids)]
+            s_ = s_[np.isfinite(s_["x"].to_numpy(float))]
+            sc = sids.get_indexer(s_["sid"])
+            spos = s_.groupby("sid", sort=False).cumcount().to_numpy()
+            ms = int(spos.max()) + 1 if len(s_) else 0
+            PX = np.zeros((ns, ms)); PP = np.zeros((ns, ms)); PV = np.zeros((ns, ms), bool)
+            if ms:
+                with np.errstate(divide="ignore", invalid="ignore"):
+                    PX[sc, spos] = s_["x"].to_numpy(float) / cum_now[sc]
+                PP[sc, spos] = s_["p"].to_numpy(float)
+                PV[sc, spos] = np.isfinite(PX[sc, spos])
+                PX = np.nan_to_num(PX)
+            sv_m = (PX, PP, PV)
         mb = _mb_fit(BZ, np.nan_to_num(FS), np.nan_to_num(FE), BV & np.isfinite(FS), Bn, sigma, codes,
-                     [tuple(float(v) for v in u) for u in uniq])
+                     [tuple(float(v) for v in u) for u in uniq], sv_m)
         mb_ok = mb["ok"] & hdr_ok
         rn = mb["rnow"]
         lo_r = mb["lo"]
@@ -900,6 +915,13 @@ MB_REFINE_ROUNDS = 2
 #: At most this many blocks of consecutive producing months enter the fit (block GOR =
 #: summed gas / summed oil, weighted by its number of months).
 MB_MAX_BLOCKS = 48
+#: Pressure surveys enter the match (p along the Tarner path at the survey's recovery
+#: factor) with this error; each squared residual is clipped at 3 errors. Near the GOR
+#: peak the GOR is flat but the pressure is not (it falls 110-160 psi across the band where
+#: the GOR is within 1 % of its maximum, default synthetic sets), so surveys place the well
+#: on its path where the GOR cannot.
+MB_USE_SURVEYS = True
+MB_SURVEY_SIGMA_PSIA = 50.0
 #: Wells per vectorised chunk of the misfit (keeps temporaries small).
 MB_CHUNK = 256
 #: Fit accepted when its robust residual scale is at most this multiple of the noise level
@@ -941,7 +963,7 @@ def _mb_curve(api: float, gamma_g: float, t_f: float, pb: float, pi: float,
     return {
         "label": f"Tarner path, Corey Sgc {sgc:.2f} Swc {swc:.2f} Sorg {sorg:.2f}",
         "r": t["np_over_n"].to_numpy(float), "gp": t["gp_over_n_scf_stb"].to_numpy(float),
-        "gor": t["producing_gor_scf_stb"].to_numpy(float),
+        "gor": t["producing_gor_scf_stb"].to_numpy(float), "p": t["p_psia"].to_numpy(float),
         "r_b": float(pred.np_over_n_bubble),
         "r_s2": np.nan if pred.np_over_n_stage2_end is None else float(pred.np_over_n_stage2_end),
         "r_pk": np.nan if pred.np_over_n_gor_peak is None else float(pred.np_over_n_gor_peak),
@@ -959,17 +981,19 @@ def _mb_grid(curve: dict) -> np.ndarray:
 
 
 def _mb_loss(curve: dict, rnow: np.ndarray, fs: np.ndarray, fe: np.ndarray, z: np.ndarray,
-             valid: np.ndarray, clip: np.ndarray, wt: np.ndarray) -> np.ndarray:
-    """Robust misfit of ln GOR for recovery factors ``rnow`` (wells x candidates), in chunks."""
+             valid: np.ndarray, clip: np.ndarray, wt: np.ndarray, sv: tuple | None = None) -> np.ndarray:
+    """Robust misfit of ln GOR (plus pressure surveys when ``sv`` is given) for recovery
+    factors ``rnow`` (wells x candidates), in chunks."""
     out = np.empty(rnow.shape)
     for a in range(0, rnow.shape[0], MB_CHUNK):
         b = slice(a, a + MB_CHUNK)
-        out[b] = _mb_loss_chunk(curve, rnow[b], fs[b], fe[b], z[b], valid[b], clip[b], wt[b])
+        out[b] = _mb_loss_chunk(curve, rnow[b], fs[b], fe[b], z[b], valid[b], clip[b], wt[b],
+                                None if sv is None else tuple(x[b] for x in sv))
     return out
 
 
 def _mb_loss_chunk(curve: dict, rnow: np.ndarray, fs: np.ndarray, fe: np.ndarray, z: np.ndarray,
-                   valid: np.ndarray, clip: np.ndarray, wt: np.ndarray) -> np.ndarray:
+                   valid: np.ndarray, clip: np.ndarray, wt: np.ndarray, sv: tuple | None = None) -> np.ndarray:
     r, gp = curve["r"], curve["gp"]
     rmax = r[-1]
     w, k = rnow.shape
@@ -984,10 +1008,18 @@ def _mb_loss_chunk(curve: dict, rnow: np.ndarray, fs: np.ndarray, fe: np.ndarray
     res = np.where(re > rmax, np.inf, res)
     sq = np.minimum(wt[:, None, :] * res * res, clip[:, None, None])
     sq = np.where(valid[:, None, :], sq, 0.0)
-    return sq.sum(axis=2)
+    tot = sq.sum(axis=2)
+    if sv is not None and sv[0].shape[1] > 0:
+        # pressure surveys: squared residual in units of the survey error, clipped at 3,
+        # scaled by the GOR noise variance so both terms share the GOR misfit's units
+        px, pp, pv, wp = sv
+        p_pred = np.interp(rnow[:, :, None] * px[:, None, :], r, curve["p"])
+        rp = np.minimum(((pp[:, None, :] - p_pred) / MB_SURVEY_SIGMA_PSIA) ** 2, 9.0)
+        tot = tot + wp[:, None] * np.where(pv[:, None, :], rp, 0.0).sum(axis=2)
+    return tot
 
 
-def _mb_fit(Z, FS, FE, V, W, sigma, groups: np.ndarray, group_keys: list) -> dict:
+def _mb_fit(Z, FS, FE, V, W, sigma, groups: np.ndarray, group_keys: list, surveys: tuple | None = None) -> dict:
     """Fit the current recovery factor of every well to its group's Tarner path.
 
     ``FS``/``FE``: cumulative oil at the start/end of each producing month divided by the
@@ -1000,6 +1032,14 @@ def _mb_fit(Z, FS, FE, V, W, sigma, groups: np.ndarray, group_keys: list) -> dic
     out["label"] = np.full(ns, "", dtype=object)
     clip = (3.0 * sigma) ** 2
     Zc = np.where(V, Z, 0.0)
+    if surveys is not None:
+        wp_all = sigma ** 2
+
+    def sv_of(idx):
+        if surveys is None:
+            return None
+        return surveys[0][idx], surveys[1][idx], surveys[2][idx], wp_all[idx]
+
     nvalid = np.where(V, W, 0.0).sum(axis=1)
     for gi, key in enumerate(group_keys):
         rows = np.flatnonzero(groups == gi)
@@ -1018,7 +1058,7 @@ def _mb_fit(Z, FS, FE, V, W, sigma, groups: np.ndarray, group_keys: list) -> dic
                 continue
             grid = _mb_grid(c)
             L = _mb_loss(c, np.broadcast_to(grid, (sel.size, grid.size)), FS[sel], FE[sel], Zc[sel], V[sel],
-                         clip[sel], W[sel])
+                         clip[sel], W[sel], sv_of(sel))
             tot = L.min(axis=1).sum()
             if tot < best_l:
                 best_c, best_l = c, tot
@@ -1026,7 +1066,8 @@ def _mb_fit(Z, FS, FE, V, W, sigma, groups: np.ndarray, group_keys: list) -> dic
             continue
         c = best_c
         grid = _mb_grid(c)
-        L = _mb_loss(c, np.broadcast_to(grid, (rows.size, grid.size)), FS[rows], FE[rows], Zc[rows], V[rows], clip[rows], W[rows])
+        L = _mb_loss(c, np.broadcast_to(grid, (rows.size, grid.size)), FS[rows], FE[rows], Zc[rows], V[rows], clip[rows],
+                     W[rows], sv_of(rows))
         kb = L.argmin(axis=1)
         # refine twice between the neighbours of the best point so far
         idx = np.arange(rows.size)
@@ -1035,7 +1076,7 @@ def _mb_fit(Z, FS, FE, V, W, sigma, groups: np.ndarray, group_keys: list) -> dic
         allr, allL = [np.broadcast_to(grid, (rows.size, grid.size))], [L]
         for _ in range(MB_REFINE_ROUNDS):
             fine = lo_g[:, None] + (hi_g - lo_g)[:, None] * np.linspace(0.0, 1.0, MB_REFINE_POINTS)[None, :]
-            Lf = _mb_loss(c, fine, FS[rows], FE[rows], Zc[rows], V[rows], clip[rows], W[rows])
+            Lf = _mb_loss(c, fine, FS[rows], FE[rows], Zc[rows], V[rows], clip[rows], W[rows], sv_of(rows))
             kf = Lf.argmin(axis=1)
             allr.append(fine)
             allL.append(Lf)
