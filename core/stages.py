@@ -1404,6 +1404,22 @@ def track_wells(
     counts = counts.reindex(ids)
     attrs = _attrs_from_wells(all_ids, wells, "well_id").set_axis(ids)
     attrs["first_mi"] = counts["first_mi"].to_numpy(float)
+    # a gap in a well's fluid header (API, gas gravity, temperature, initial pressure) is
+    # filled with the median of the other wells of its reservoir unit, which share the
+    # reservoir's fluid (common practice); said in the well's evidence. The bubble point is
+    # not filled: it comes from Standing's correlation with the well's own Rsi.
+    filled = pd.Series("", index=ids, dtype=object)
+    if "unit" in prod.columns and len(prod):
+        wunit = pd.Series(prod["unit"].astype(str).to_numpy(), index=prod["well_id"].to_numpy())
+        wunit = wunit[~wunit.index.duplicated()].reindex(all_ids).fillna("unassigned").to_numpy(object)
+        names = {"api": "API gravity", "gamma_g": "gas gravity", "t_f": "temperature", "pi": "initial pressure"}
+        for c, name in names.items():
+            col = attrs[c]
+            med = col.groupby(wunit).transform("median")
+            gap = col.isna() & med.notna() & pd.Series(wunit != "unassigned", index=ids)
+            if gap.any():
+                attrs.loc[gap, c] = med[gap]
+                filled[gap] = filled[gap] + np.where(filled[gap] == "", "", ", ") + name
     ftype = pd.Series("unknown", index=ids, dtype=object)
     if fluids is not None and len(fluids) and "fluid_type" in fluids:
         f = fluids.drop_duplicates("well_id").set_index("well_id")["fluid_type"].astype(str)
@@ -1418,6 +1434,9 @@ def track_wells(
     out, full = _finish(res, attrs, as_of_i, None)
     unknown = (ftype == "unknown").to_numpy() & (out["stage_reason"] == "").to_numpy()
     out.loc[unknown, "stage_evidence"] = "fluid type unknown, tracked as oil; " + out.loc[unknown, "stage_evidence"]
+    fl_ = (filled.to_numpy(object) != "") & (out["stage_reason"] == "").to_numpy()
+    out.loc[fl_, "stage_evidence"] = ("header gap filled with the unit median (" + filled.to_numpy(object)[fl_]
+                                      + "); " + out.loc[fl_, "stage_evidence"])
     out.insert(0, "well_id", all_ids.to_numpy())
     return out.reset_index(drop=True)[WELL_COLUMNS]
 

@@ -517,3 +517,18 @@ def test_upper_sand_stage_follows_the_generator_truth(sample_runs):
         expected = _true_stage_at(truth, cut).reindex(upper)
         got = runs[cut]["stage"].astype("float").reindex(upper)
         assert (got == expected).all(), (cut, pd.DataFrame({"got": got, "expected": expected}))
+
+
+def test_header_gap_filled_from_the_unit_median(sample_runs):
+    # sample_wells/README.md: QM-L11 has no temperature and QM-U04 no gas gravity in the
+    # header. The gap is filled with the unit median (the unit shares one fluid: common
+    # practice), the evidence says so, and the stage agrees with the generator's truth.
+    runs, truth = sample_runs
+    out = runs["2026-10"]
+    expected = _true_stage_at(truth, "2026-10")
+    for well, what in (("QM-L11", "temperature"), ("QM-U04", "gas gravity")):
+        assert f"header gap filled with the unit median ({what})" in out.loc[well, "stage_evidence"]
+        assert "material-balance GOR match (" in out.loc[well, "stage_evidence"]
+        assert out.loc[well, "stage"] == expected[well]
+    # wells with a complete header say nothing of the kind
+    assert "header gap" not in out.loc["QM-L10", "stage_evidence"]
