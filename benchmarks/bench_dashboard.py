@@ -8,10 +8,14 @@ browser: browser rendering time is not included):
 * compute: "Compute the forecast" clicked until the run is done (``core.run.run_field``);
 * overview: the Field overview page drawn from the cached run;
 * well switch: another well picked on the Well review page (mean and max of several);
-* override: a fixed-b override applied on the Well review page (the field is re-run);
-* cached revisit: the overview opened again with nothing changed.
+* override: a fixed-b override applied on the Well review page (through
+  ``core.run.rerun_wells`` when core has it, else a field re-run; the path taken is printed);
+* a forecast-only setting (the economic limit) applied (``core.run.rerun_forecast`` when
+  core has it, else a field re-run);
+* cached revisit: the overview opened again with nothing changed;
+* with ``--samples N``: the P90/P50/P10 computed from the overview (N samples per well).
 
-Usage: ``python benchmarks/bench_dashboard.py [--wells 1000] [--seed 11]``
+Usage: ``python benchmarks/bench_dashboard.py [--wells 1000] [--seed 11] [--samples 0]``
 """
 
 from __future__ import annotations
@@ -33,6 +37,7 @@ def main(argv: list[str] | None = None) -> int:
     ap.add_argument("--wells", type=int, default=1000)
     ap.add_argument("--seed", type=int, default=11)
     ap.add_argument("--switches", type=int, default=5)
+    ap.add_argument("--samples", type=int, default=0, help="probabilistic samples per well (0: not timed)")
     args = ap.parse_args(argv)
 
     os.environ["DEPLETION_DESK_DB"] = tempfile.mkdtemp(prefix="dd_bench_store_")
@@ -83,13 +88,34 @@ def main(argv: list[str] | None = None) -> int:
         at.text_input(key="ov_reason").input("benchmark override")
         at.button(key="FormSubmitter:override_form-Apply override").click().run()
 
-    figures["override applied (field re-run)"] = timed(override)
+    figures["override applied"] = timed(override)
+    path = at.session_state["dd_run_path"]
     figures["override: back to the cached well view"] = timed(lambda: at.switch_page("pages/well.py").run())
+
+    def limit():
+        at.switch_page("pages/settings.py").run()
+        at.number_input(key="set_econ_limit").set_value(2.5)
+        at.button(key="FormSubmitter:settings_form-Apply settings").click().run()
+        at.switch_page("pages/overview.py").run()
+
+    figures["economic limit changed, overview redrawn"] = timed(limit)
+    limit_path = at.session_state["dd_run_path"]
+    if args.samples:
+        def prob():
+            at.switch_page("pages/settings.py").run()
+            at.number_input(key="set_samples").set_value(args.samples)
+            at.button(key="FormSubmitter:settings_form-Apply settings").click().run()
+            at.switch_page("pages/overview.py").run()
+            at.button(key="prob_compute_overview").click().run()
+
+        figures[f"P90/P50/P10 computed ({args.samples} samples)"] = timed(prob)
 
     width = max(map(len, figures))
     print(f"dashboard timings, {args.wells} wells, AppTest in-process ({os.cpu_count()} CPUs):")
     for name, value in figures.items():
         print(f"  {name:<{width}}  {value:7.2f} s")
+    print(f"override path: {path[0]} ({path[1]:.2f} s in core); economic-limit path: {limit_path[0]} "
+          f"({limit_path[1]:.2f} s in core)")
     return 0
 
 

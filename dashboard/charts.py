@@ -99,7 +99,7 @@ _LAYOUT = dict(
     paper_bgcolor="white",
     plot_bgcolor="white",
     margin=dict(l=60, r=20, t=80, b=40),
-    legend=dict(orientation="h", yanchor="bottom", y=1.02, xanchor="left", x=0.0),
+    legend=dict(orientation="h", yanchor="bottom", y=1.02, xanchor="left", x=0.0, traceorder="normal"),
     hovermode="x unified",
     font=dict(size=12),
 )
@@ -220,6 +220,30 @@ def _forecast_to_limit(forecast: pd.DataFrame, econ_limit_rate: float | None) ->
     return f
 
 
+def _band_to_limit(band: pd.DataFrame, econ_limit_rate: float | None) -> tuple[pd.DataFrame, pd.Series, pd.Series]:
+    """The band's months and its low (P90) and P50 lines as drawn on a log axis.
+
+    Monthly percentiles fall towards zero once some samples have reached the economic limit
+    (a stopped sample counts as zero), which would draw vertical drops to the bottom of a log
+    axis. With a limit given, the band is drawn down to the limit and no lower: months whose
+    P10 is below the limit are left off, a P90 below it is drawn at the limit (the low case
+    has ended), a P50 below it is not drawn. Without a limit only non-positive values are
+    left off. The tables keep every month's volumes.
+    """
+    p10 = pd.to_numeric(band["rate_p10"], errors="coerce")
+    lim = float(econ_limit_rate) if econ_limit_rate is not None and pd.notna(econ_limit_rate) and econ_limit_rate > 0 else 0.0
+    b = band.loc[p10.gt(0) & p10.ge(0.999 * lim)] if lim else band.loc[p10.gt(0)]
+    low = pd.to_numeric(b["rate_p90"], errors="coerce")
+    mid = pd.to_numeric(b["rate_p50"], errors="coerce")
+    if lim:
+        low = low.clip(lower=lim)
+        mid = mid.where(mid >= 0.999 * lim)
+    else:
+        low = low.where(low > 0)
+        mid = mid.where(mid > 0)
+    return b, low, mid
+
+
 def rate_time_figure(
     history: pd.DataFrame,
     *,
@@ -281,13 +305,12 @@ def rate_time_figure(
                   line=dict(color=PALETTE["fitted"], width=2, dash="dash"))
     ys = list(actual[col])
     if band is not None and not band.empty:
-        b = band.loc[pd.to_numeric(band["rate_p10"], errors="coerce").gt(0)]
-        low = pd.to_numeric(b["rate_p90"], errors="coerce").where(lambda x: x > 0)
+        b, low, mid = _band_to_limit(band, econ_limit_rate)
         fig.trace(x=b["month"], y=b["rate_p10"], mode="lines", name="P10 (high)", showlegend=False,
                   line=dict(color=PALETTE["band"], width=0.5), hoverinfo="skip")
         fig.trace(x=b["month"], y=low, mode="lines", name="P90-P10 range", fill="tonexty",
                   fillcolor=PALETTE["band_fill"], line=dict(color=PALETTE["band"], width=0.5), connectgaps=False)
-        fig.trace(x=b["month"], y=b["rate_p50"], mode="lines", name="P50",
+        fig.trace(x=b["month"], y=mid, mode="lines", name="P50",
                   line=dict(color=PALETTE["band"], width=1.5, dash="dashdot"))
         ys += list(b["rate_p10"]) + list(low.dropna())
     if forecast is not None and not forecast.empty:
@@ -425,7 +448,7 @@ def gor_pressure_figure(
         xaxis=dict(title=dict(text="month")),
         yaxis=dict(title=dict(text="GOR [scf/STB]"), rangemode="tozero"),
         yaxis2=dict(title=dict(text="pressure [psia]"), overlaying="y", side="right",
-                    rangemode="tozero", showgrid=False),
+                    rangemode="tozero", showgrid=False, tickmode="auto", nticks=6),
     )
 
 
@@ -456,7 +479,8 @@ def stage_share_figure(units: pd.DataFrame, *, title: str = "Wells by stage in e
                   marker=dict(color=PALETTE["stage"][stage], line=dict(color="#333333", width=0.5)),
                   hovertemplate="%{y}: %{x:.0%}<extra>" + name + "</extra>")
     return fig.build(title, barmode="stack", hovermode="closest",
-                     legend=dict(orientation="h", yanchor="top", y=-0.18, xanchor="left", x=0.0),
+                     legend=dict(orientation="h", yanchor="top", y=-0.32, xanchor="left", x=0.0),
+                     margin=dict(l=60, r=20, t=80, b=150),
                      xaxis=dict(title=dict(text="share of wells"), tickformat=".0%", range=[0, 1]),
                      yaxis=dict(automargin=True))
 
@@ -543,5 +567,7 @@ def type_well_figure(curve: pd.DataFrame, *, fit_label: str = "", title: str = "
         xaxis=dict(title=dict(text="months since alignment (month 0)")),
         yaxis=dict(type="log", title=dict(text="oil rate [bbl/d]"), **log_ticks(ys)),
         yaxis2=dict(title=dict(text="wells contributing"), overlaying="y", side="right", showgrid=False,
-                    rangemode="tozero", range=[0, 3.0 * float(curve["n_wells"].max())]),
+                    range=[0, 3.0 * float(curve["n_wells"].max())], tickmode="auto", nticks=4, tickformat="d"),
+        legend=dict(orientation="h", yanchor="top", y=-0.2, xanchor="left", x=0.0, traceorder="normal"),
+        margin=dict(l=60, r=60, t=60, b=120), height=520,
     )

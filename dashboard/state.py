@@ -647,9 +647,16 @@ def _base_key() -> str:
     return "|".join([str(load_key()), _settings_key()])
 
 
+def _forecast_only_settings() -> tuple[str, ...]:
+    import core.run as core_run
+
+    return tuple(getattr(core_run, "FORECAST_SETTINGS", FORECAST_ONLY_SETTINGS))
+
+
 def _fit_key() -> str:
-    """Load, fit-affecting settings and overrides: runs that differ only in forecast settings."""
-    return "|".join([str(load_key()), _settings_key(FORECAST_ONLY_SETTINGS),
+    """Load, fit-affecting settings and overrides: runs that differ only in forecast settings
+    (``core.run.FORECAST_SETTINGS`` when core names them, else :data:`FORECAST_ONLY_SETTINGS`)."""
+    return "|".join([str(load_key()), _settings_key(_forecast_only_settings()),
                      _override_key(st.session_state[OVERRIDES])])
 
 
@@ -737,13 +744,20 @@ def _incremental_run(load, settings_obj, overrides: dict):
         if prev is not None:
             wells = changed_wells(hit[1], overrides)
             if wells:
-                run = core_run.rerun_wells(prev, load, settings=settings_obj, overrides=overrides or None, wells=wells)
+                try:
+                    run = core_run.rerun_wells(prev, load, settings=settings_obj, overrides=overrides or None,
+                                               wells=wells)
+                except ValueError:  # core refuses the step (it names why): run the whole field
+                    return None
                 return run, f"re-run of {len(wells)} well{'s' if len(wells) != 1 else ''}"
     if hasattr(core_run, "rerun_forecast"):
         hit = lineage.get("fit|" + _fit_key())
         prev = None if hit is None else cache.get(hit[0])
         if prev is not None:
-            run = core_run.rerun_forecast(prev, load, settings=settings_obj, overrides=overrides or None)
+            try:
+                run = core_run.rerun_forecast(prev, load, settings=settings_obj, overrides=overrides or None)
+            except ValueError:
+                return None
             return run, "forecast re-run"
     return None
 
@@ -898,7 +912,9 @@ def probabilistic_controls(run, *, where: str):
     if res is not None:
         return res
     n = len(run.wells)
-    if st.button(f"Compute P90/P50/P10 ({n:,} wells x {samples} samples)", key=f"prob_compute_{where}"):
+    slot = st.empty()  # the button goes once the result is drawn
+    if slot.button(f"Compute P90/P50/P10 ({n:,} wells x {samples} samples)", key=f"prob_compute_{where}"):
+        slot.empty()
         bar = st.progress(0.0, text="Probabilistic forecast")
         try:
             res = compute_probabilistic(run, progress=lambda f, m: bar.progress(min(max(float(f), 0.0), 1.0), text=m))
@@ -963,6 +979,28 @@ def prob_column_config() -> dict:
         for p, word in (("p90", "P90 low"), ("p50", "P50"), ("p10", "P10 high")):
             out[f"{q}_{p}"] = st.column_config.NumberColumn(f"{name} {word} [bbl]", format="localized")
     return out
+
+
+PROB_HEADS = {"p90": "P90 (low)", "p50": "P50", "p10": "P10 (high)"}
+
+
+def prob_well_ranges(prow: pd.Series) -> pd.DataFrame:
+    """The well's P90/P50/P10 as a small table: EUR and remaining oil [bbl], economic-limit
+    month (P90 the early month; "beyond horizon" when that share of samples reaches the cap)."""
+    rows = []
+    for label, q in (("EUR oil [bbl]", "eur_oil_bbl"), ("Remaining oil [bbl]", "remaining_oil_bbl")):
+        rows.append([label] + [number_text(prow[f"{q}_{p}"]) for p in PROB_HEADS])
+    rows.append(["Economic-limit month"] + [month_text(prow[f"econ_limit_date_{p}"]) or "beyond horizon" for p in PROB_HEADS])
+    return pd.DataFrame(rows, columns=["quantity", *PROB_HEADS.values()])
+
+
+def prob_field_ranges(prob) -> pd.DataFrame:
+    """The field totals of ``ProbabilisticResult.field`` as a small table [bbl]."""
+    f = prob.field
+    names = {"remaining_oil_bbl": "Remaining oil [bbl]", "eur_oil_bbl": "EUR oil [bbl]"}
+    rows = [[names.get(r["quantity"], r["quantity"])] + [number_text(r[p]) for p in PROB_HEADS] + [number_text(r["mean"])]
+            for _, r in f.iterrows()]
+    return pd.DataFrame(rows, columns=["quantity", *PROB_HEADS.values(), "mean"])
 
 
 def prob_range_text(low: Any, mid: Any, high: Any, fmt: str = "{:,.0f}") -> str:
@@ -1542,6 +1580,14 @@ the forecast tables.
   gas z-factor by Hall-Yarborough and Dranchuk-Abou-Kassem.
 * Material balance for the expected GOR and pressure path: Tarner (1944) and Muskat (1945)
   with Corey relative permeabilities.
+* P90 / P50 / P10 (optional, Settings): moving-block bootstrap of each well's decline fit
+  (H. R. Künsch, Annals of Statistics 17(3), 1989) with a level error measured by a hindcast
+  of the field's last 24 months, after the backward analysis of Cheng, Wang, McVay and Lee,
+  SPE-95974-PA (2010). P90 is the low estimate (exceeded with 90 % probability), P10 the
+  high one (SPE-PRMS, 2018). Field totals add the wells sample by sample, not percentile by
+  percentile.
+* Type wells: the wells' rates aligned at first production or peak, P90 / P50 / P10 per
+  month (Hyndman and Fan 1996, type 7 percentiles), Arps fit of the P50.
 
 **Colours.** Charts use the Okabe-Ito colour-universal-design set (Okabe and Ito, 2008),
 mapped by us: oil black, gas orange, water reddish purple, fit vermillion dashed, forecast

@@ -164,23 +164,39 @@ def test_upload_overview_well_download_and_screenshots(server, page, tmp_path):
     _wait_idle(page)
     _shot(page, "load_data")
 
-    # Field overview: headline figures and charts drawn.
+    # Settings: turn the probabilistic forecast on (off by default).
+    _open(page, server, "Settings")
+    page.get_by_role("spinbutton", name="Samples per well (0 = off)").fill("100")
+    page.get_by_role("button", name="Apply settings").click()
+    expect(page.get_by_text("Settings applied.")).to_be_visible()
+    _wait_idle(page)
+    _shot(page, "settings")
+
+    # Field overview: headline figures and charts drawn; the P90/P50/P10 computed on request.
     _open(page, server, "Field overview")
     wells_shown = _metric_value(page, "Wells")
     assert int(wells_shown.replace(",", "")) > 0
+    page.get_by_role("button", name="Compute P90/P50/P10").click()
+    expect(page.get_by_text("Field totals of 100 samples")).to_be_visible()
+    _wait_idle(page)
     expect(page.get_by_test_id("stPlotlyChart").first.locator(".main-svg").first).to_be_visible()
     _shot(page, "field_overview")
 
-    # Well review: the rate chart has the actual points, the fit and the forecast.
+    # Well review: the rate chart has the actual points, the fit, the forecast and the band.
     _open(page, server, "Well review")
     chart = page.get_by_test_id("stPlotlyChart").first
     expect(chart.locator(".main-svg").first).to_be_visible()
-    assert chart.locator("g.trace").count() >= 2
+    assert chart.locator("g.trace").count() >= 4
     eur_text = _metric_value(page, "EUR oil")
+    expect(page.get_by_text("100 samples, seed 0")).to_be_visible()
     _shot(page, "well_review")
 
     _open(page, server, "Unit planning")
     _shot(page, "unit_planning")
+
+    _open(page, server, "Type wells")
+    expect(page.get_by_test_id("stPlotlyChart").first.locator(".main-svg").first).to_be_visible()
+    _shot(page, "type_wells")
 
     # Downloads: the forecast workbook for the field, read back with openpyxl.
     _open(page, server, "Downloads")
@@ -207,7 +223,5 @@ def test_upload_overview_well_download_and_screenshots(server, page, tmp_path):
     wb.close()
     _shot(page, "downloads")
 
-    _open(page, server, "Settings")
-    _shot(page, "settings")
     _open(page, server, "About")
     _shot(page, "about")

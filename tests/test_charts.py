@@ -230,8 +230,13 @@ def test_rate_time_figure_band_and_the_forecast_ends_at_the_limit():
     assert list(_trace(fig, "forecast").y) == [40.0, 30.0, 20.0]
     low = _trace(fig, "P90-P10 range")
     assert low.fill == "tonexty"
-    assert list(low.y[:2]) == [30.0, 20.0] and all(np.isnan(v) for v in low.y[2:])  # zero: not on a log axis
-    assert list(_trace(fig, "P50").y)[:3] == [40.0, 30.0, 20.0]
+    # drawn down to the limit and no lower: a P90 under it at the limit, a P50 under it left off
+    assert list(low.y) == [30.0, 20.0, 10.0, 10.0]
+    mid = list(_trace(fig, "P50").y)
+    assert mid[:3] == [40.0, 30.0, 20.0] and np.isnan(mid[3])
+    # without a limit: zeros (not drawable on a log axis) are gaps
+    free = charts.rate_time_figure(h, forecast=fc, band=band)
+    assert list(_trace(free, "P90-P10 range").y[:2]) == [30.0, 20.0] and all(np.isnan(v) for v in _trace(free, "P90-P10 range").y[2:])
     # without a limit the forecast is drawn whole
     assert len(_trace(charts.rate_time_figure(h, forecast=fc), "forecast").y) == 4
 

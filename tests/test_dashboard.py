@@ -11,6 +11,7 @@ from __future__ import annotations
 import json
 from pathlib import Path
 
+import numpy as np
 import pandas as pd
 import pytest
 from streamlit.testing.v1 import AppTest
@@ -101,6 +102,13 @@ def _values(v):
     if isinstance(v, dict) and "bdata" in v:
         return np.frombuffer(base64.b64decode(v["bdata"]), dtype=np.dtype(v["dtype"])).astype(float)
     return np.asarray([np.nan if x is None else x for x in v], dtype=float)
+
+
+def _frame_with(at: AppTest, column: str) -> pd.DataFrame:
+    """The first dataframe shown with this column."""
+    found = [d.value for d in at.dataframe if column in d.value.columns]
+    assert found, f"no dataframe with column {column!r}"
+    return found[0]
 
 
 def _ok(at: AppTest) -> None:
@@ -443,18 +451,23 @@ def test_probabilistic_forecast_is_off_by_default_then_equals_core(sample_run):
         level_error="auto", regime_start=run.stages.set_index("well_id")["regime_start"])
     f = expected.field.set_index("quantity")
     rem = f.loc["remaining_oil_bbl"]
-    assert _metric(at, "Remaining oil, P90 / P50 / P10") == f"{rem['p90']:,.0f} / {rem['p50']:,.0f} / {rem['p10']:,.0f} bbl"
+    shown = _frame_with(at, "P90 (low)").set_index("quantity")
+    assert list(shown.loc["Remaining oil [bbl]", ["P90 (low)", "P50", "P10 (high)", "mean"]]) == [
+        f"{rem[k]:,.0f}" for k in ("p90", "p50", "p10", "mean")]
     # The field P50 is the median of the sample-wise sums, not the sum of the wells' P50s.
     assert rem["p50"] != pytest.approx(expected.wells["remaining_oil_bbl_p50"].sum(), rel=1e-9)
-    table = at.dataframe[0].value.merge(expected.wells, on="well_id", suffixes=("_shown", "_core"))
+    table = _frame_with(at, "well_id").merge(expected.wells, on="well_id", suffixes=("_shown", "_core"))
     pd.testing.assert_series_equal(table["eur_oil_bbl_p50_shown"], table["eur_oil_bbl_p50_core"], check_names=False)
     # Well page: the well's ranges and the band on its rate chart.
     at.switch_page("pages/well.py").run()
     _ok(at)
     well = at.selectbox(key="well_pick").value
     w = expected.wells.set_index("well_id").loc[well]
-    assert _metric(at, "EUR oil, P90 / P50 / P10") == (
-        f"{w['eur_oil_bbl_p90']:,.0f} / {w['eur_oil_bbl_p50']:,.0f} / {w['eur_oil_bbl_p10']:,.0f} bbl")
+    ranges = _frame_with(at, "P90 (low)").set_index("quantity")
+    assert list(ranges.loc["EUR oil [bbl]", ["P90 (low)", "P50", "P10 (high)"]]) == [
+        f"{w[f'eur_oil_bbl_{k}']:,.0f}" for k in ("p90", "p50", "p10")]
+    assert ranges.loc["Economic-limit month", "P50"] == (
+        w["econ_limit_date_p50"].strftime("%Y-%m") if pd.notna(w["econ_limit_date_p50"]) else "beyond horizon")
     # Reserves convention (SPE-PRMS 2018): P90 low <= P50 <= P10 high.
     assert w["eur_oil_bbl_p90"] <= w["eur_oil_bbl_p50"] <= w["eur_oil_bbl_p10"]
     chart = json.loads(at.get("plotly_chart")[0].proto.spec)
@@ -462,11 +475,12 @@ def test_probabilistic_forecast_is_off_by_default_then_equals_core(sample_run):
     m = expected.monthly.loc[expected.monthly["well_id"] == well]
     days = m["month"].dt.days_in_month.to_numpy(float)
     shown = _values(band["y"])
+    limit = float(run.wells.set_index("well_id").loc[well, "econ_limit_bopd"])
+    high = m["oil_bbl_p10"].to_numpy() / days
     want = m["oil_bbl_p90"].to_numpy() / days
-    assert len(shown) == len(m)
-    # a P90 of zero (the low case already at its limit) cannot be drawn on a log axis: a gap
-    assert shown[want > 0] == pytest.approx(want[want > 0], rel=1e-12)
-    assert pd.isna(shown[want <= 0]).all()
+    # drawn down to the economic limit, no lower (months with the P10 under the limit left off)
+    keep = (high > 0) & (high >= 0.999 * limit)
+    assert shown == pytest.approx(np.maximum(want[keep], limit), rel=1e-12)
 
 
 def test_type_wells_page_equals_core_and_downloads(sample_run):

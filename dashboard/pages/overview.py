@@ -23,14 +23,8 @@ st.markdown("**Probabilistic forecast**")
 prob = state.probabilistic_controls(run, where="overview")
 if prob is not None:
     totals = state.prob_field_totals(prob).set_index("quantity")
-    pc = st.columns(2)
-    for col, (q, label) in zip(pc, (("remaining_oil_bbl", "Remaining oil, P90 / P50 / P10"),
-                                     ("eur_oil_bbl", "EUR oil, P90 / P50 / P10"))):
-        if q in totals.index:
-            r = totals.loc[q]
-            col.metric(label, state.prob_range_text(r["p90"], r["p50"], r["p10"]) + " bbl",
-                       help=f"Mean {r['mean']:,.0f} bbl over {int(r['n_samples'])} samples of {int(r['n_wells'])} wells.")
-    st.caption(f"Field totals: {totals['method'].iloc[0]}. They are not sums of the wells' percentiles "
+    st.dataframe(state.prob_field_ranges(prob), hide_index=True, key="prob_field_ranges")
+    st.caption(f"Field totals of {prob.samples} samples: {totals['method'].iloc[0]}. They are not sums of the wells' percentiles "
                f"(P90s do not add). {state.PROB_WORDING}")
     for message in prob.messages:
         st.caption(message)

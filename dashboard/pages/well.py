@@ -34,13 +34,8 @@ c[3].metric("Cumulative oil", "" if pd.isna(row["cum_oil_bbl"]) else f"{row['cum
 prob = state.probabilistic_controls(run, where="well")
 prow = state.prob_well_row(prob, well)
 if prow is not None:
-    c = st.columns(3)
-    c[0].metric("EUR oil, P90 / P50 / P10", state.prob_range_text(
-        prow["eur_oil_bbl_p90"], prow["eur_oil_bbl_p50"], prow["eur_oil_bbl_p10"]) + " bbl")
-    c[1].metric("Remaining oil, P90 / P50 / P10", state.prob_range_text(
-        prow["remaining_oil_bbl_p90"], prow["remaining_oil_bbl_p50"], prow["remaining_oil_bbl_p10"]) + " bbl")
-    c[2].metric("Economic-limit month, P90 / P50 / P10", " / ".join(
-        state.month_text(prow[f"econ_limit_date_{p}"]) or "beyond horizon" for p in ("p90", "p50", "p10")))
+    st.markdown("**Probabilistic forecast**")
+    st.dataframe(state.prob_well_ranges(prow), hide_index=True, key="prob_well_ranges")
     st.caption(f"{state.text(prow['prob_method'])}; {prob.samples} samples, seed {prob.seed}. {state.PROB_WORDING} "
                "The P90 economic-limit month is the early one.")
 st.caption(
