@@ -736,6 +736,11 @@ def _analyse(months: pd.DataFrame, surveys: pd.DataFrame, cumtab: pd.DataFrame, 
         if MB_USE_SURVEYS:
             s_ = surveys[surveys["sid"].isin(sids)]
             s_ = s_[np.isfinite(s_["x"].to_numpy(float))]
+            # at most MB_MAX_SURVEYS per well (evenly thinned: keeps the matrices small when a
+            # file carries a pressure every month)
+            cnt = s_.groupby("sid", sort=False)["p"].transform("size").to_numpy()
+            k_th = np.maximum(np.ceil(cnt / MB_MAX_SURVEYS), 1).astype(int)
+            s_ = s_[(s_.groupby("sid", sort=False).cumcount().to_numpy() % k_th) == 0]
             sc = sids.get_indexer(s_["sid"])
             spos = s_.groupby("sid", sort=False).cumcount().to_numpy()
             ms = int(spos.max()) + 1 if len(s_) else 0
@@ -922,6 +927,7 @@ MB_MAX_BLOCKS = 48
 #: on its path where the GOR cannot.
 MB_USE_SURVEYS = True
 MB_SURVEY_SIGMA_PSIA = 50.0
+MB_MAX_SURVEYS = 48
 #: Wells per vectorised chunk of the misfit (keeps temporaries small).
 MB_CHUNK = 256
 #: Fit accepted when its robust residual scale is at most this multiple of the noise level
