@@ -10,6 +10,7 @@ and of its worker processes).
     .venv/bin/python benchmarks/bench_run.py                 # 10,000 wells
     .venv/bin/python benchmarks/bench_run.py --wells 100000  # the memory target
     .venv/bin/python benchmarks/bench_run.py --large         # same as --wells 100000
+    .venv/bin/python benchmarks/bench_run.py --rerun --wells 1000   # incremental re-runs
 
 Targets (issue 6): 10,000 wells file-to-outputs under 30 s on the 2-core machine; 100,000
 wells within 2 GB. The figures depend on the machine's load: say so when you quote them.
@@ -159,12 +160,49 @@ def _child(input_csv: str, out_dir: str, workers: str | None) -> None:
     print(json.dumps(out))
 
 
+def bench_rerun(csv_path: Path, workers: str | None) -> None:
+    """Incremental re-runs against the full run on the same field: a one-well override
+    (``core.run.rerun_wells``) and a new economic limit (``core.run.rerun_forecast``); checks
+    that each equals the full run (``assert_frame_equal``, exact) and prints the times."""
+    sys.path.insert(0, str(ROOT))
+    from core.decline import WellOverride
+    from core.run import RunSettings, load_inputs, rerun_forecast, rerun_wells, run_field
+
+    s = RunSettings(workers=int(workers) if workers else None)
+    load = load_inputs(csv_path, settings=s)
+    t = time.perf_counter()
+    base = run_field(load, settings=s)
+    print(f"full run: {time.perf_counter() - t:.2f} s")
+    ok = base.wells.loc[base.wells["status"] == "ok", "well_id"].tolist()
+    ov = {ok[len(ok) // 2]: WellOverride(b=0.4, reason="benchmark", author="bench")}
+    t = time.perf_counter()
+    inc = rerun_wells(base, load, settings=s, overrides=ov, wells=list(ov))
+    t_inc = time.perf_counter() - t
+    print(f"rerun_wells, one-well override: {t_inc:.3f} s ({inc.timings.get('wells_refitted', 0):.0f} wells re-fitted; "
+          + ", ".join(f"{k} {v:.3f} s" for k, v in inc.timings.items() if k in ("fit", "forecast", "assemble")) + ")")
+    t = time.perf_counter()
+    full = run_field(load, settings=s, overrides=ov)
+    print(f"full run with the override: {time.perf_counter() - t:.2f} s")
+    for n in ("wells", "monthly", "units"):
+        pd.testing.assert_frame_equal(getattr(inc, n), getattr(full, n), check_exact=True)
+    print("rerun_wells result identical to the full run: True")
+    s2 = RunSettings(workers=s.workers, econ_limit_bopd=5.0, horizon_years=30.0)
+    t = time.perf_counter()
+    inc2 = rerun_forecast(full, load, settings=s2, overrides=ov)
+    print(f"rerun_forecast, new economic limit and horizon: {time.perf_counter() - t:.2f} s")
+    full2 = run_field(load, settings=s2, overrides=ov)
+    for n in ("wells", "monthly", "units"):
+        pd.testing.assert_frame_equal(getattr(inc2, n), getattr(full2, n), check_exact=True)
+    print("rerun_forecast result identical to the full run: True")
+
+
 def main() -> int:
     ap = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     ap.add_argument("--wells", type=int, default=10_000, help="number of wells (default 10,000)")
     ap.add_argument("--large", action="store_true", help="100,000 wells (the memory target)")
     ap.add_argument("--workers", default=None, help="--workers passed to the command")
     ap.add_argument("--keep", metavar="DIR", help="keep the input and outputs in DIR")
+    ap.add_argument("--rerun", action="store_true", help="time the incremental re-runs (one-well override, new economic limit) in this process")
     ap.add_argument("--child", nargs=2, metavar=("INPUT", "OUT"), help=argparse.SUPPRESS)
     args = ap.parse_args()
     if args.child:
@@ -179,6 +217,9 @@ def main() -> int:
     gen = time.perf_counter() - t
     print(f"generated {n:,} wells, {rows:,} rows, {csv_path.stat().st_size / 2**20:,.0f} MiB in {gen:.1f} s (not timed below)")
     print(f"machine: {os.cpu_count()} logical cores, load average {os.getloadavg()[0]:.2f} (shared machine: figures vary with load)")
+    if args.rerun:
+        bench_rerun(csv_path, args.workers)
+        return 0
     cmd = [sys.executable, str(Path(__file__).resolve()), "--child", str(csv_path), str(work / "out")]
     if args.workers:
         cmd += ["--workers", args.workers]

@@ -41,7 +41,8 @@ _DESCRIPTION = (
 _EPILOG = (
     "Outputs in DIR: wells.csv (one row per well), forecast_monthly.csv (actual and forecast "
     "months), units.csv (one row per reservoir unit), load_report.csv (rejected and altered "
-    "rows), forecast.xlsx (the same tables plus a cover sheet), and changes.csv when --db "
+    "rows), forecast.xlsx (the same tables plus a cover sheet), field_percentiles.csv with "
+    "--samples, type_wells.csv with --type-wells, and changes.csv when --db "
     "already holds a run of the same field. Forecasts are estimates; reserves bookings and "
     "field decisions follow local regulations and licensed professional practice. "
     "Exit codes: 0 success, 2 input error, 1 internal error."
@@ -101,6 +102,12 @@ def build_parser() -> argparse.ArgumentParser:
     d.add_argument("--terminal-decline", type=float, default=DEFAULT_TERMINAL_DECLINE, metavar="FRAC", help=f"terminal decline, effective annual fraction in (0, 1) [1/yr] (0.06 = 6 %%/yr). Default {DEFAULT_TERMINAL_DECLINE:g}")
     d.add_argument("--horizon-years", type=float, default=DEFAULT_HORIZON_YEARS, metavar="YEARS", help=f"forecast horizon cap after the as-of month [yr]. Default {DEFAULT_HORIZON_YEARS:g}")
     d.add_argument("--workers", type=int, metavar="N", help="worker processes for the fits. Default: chosen by the decline engine from the cores available")
+
+    pgrp = f.add_argument_group("probabilistic forecasts (P90/P50/P10) and type wells")
+    pgrp.add_argument("--samples", type=int, default=0, metavar="N", help="bootstrap samples per well for P90/P50/P10 of EUR, remaining oil and economic-limit month (20 to 100,000); adds field_percentiles.csv. Default 0 (off)")
+    pgrp.add_argument("--seed", type=int, default=0, metavar="N", help="seed of the probabilistic samples (a well's samples depend only on the seed and its id). Default 0")
+    pgrp.add_argument("--scheduler", metavar="ADDRESS|local", help="run the probabilistic samples on Dask: 'local' starts a local cluster of 2 workers, or give a scheduler address such as tcp://host:8786; the numbers are the same. Default: in this process")
+    pgrp.add_argument("--type-wells", action="store_true", help="also write type_wells.csv: one P90/P50/P10 type well per reservoir unit (wells aligned at first production, producing-day oil rates, Arps fit to the P50; units with fewer than 5 wells at month 0 are left out). Default: not written")
 
     i = f.add_argument_group("input interpretation")
     i.add_argument("--units", choices=("field", "metric"), default="field", help="unit system of the input (outputs are always field units: bbl, Mcf, psia). Default field")
@@ -187,6 +194,20 @@ def format_summary(result: Any, paths: dict[str, Path] | None = None, *, changes
         f"(cumulative {_num(s.get('cum_oil_bbl_total'))}, remaining {_num(s.get('remaining_oil_bbl_total'))})"
     )
     lines.append(f"wells past the GOR peak: {s.get('wells_past_gor_peak', 0):,}")
+    if "store_field" in s:
+        lines.append(
+            f"store: field {s['store_field']!r}; overrides carried forward: {s.get('overrides_carried_forward', 0):,}; "
+            f"months appended: {s.get('months_appended', 0):,}; conflicts: {s.get('merge_conflicts', 0):,} "
+            "(newer file wins, each reported in load_report.csv)"
+        )
+    if "eur_oil_bbl_field_p50" in s:
+        lines.append(
+            f"field EUR oil P90 / P50 / P10: {_num(s.get('eur_oil_bbl_field_p90'))} / "
+            f"{_num(s.get('eur_oil_bbl_field_p50'))} / {_num(s.get('eur_oil_bbl_field_p10'))} bbl "
+            "(sample-wise sums over wells; see field_percentiles.csv)"
+        )
+    if "type_wells" in s:
+        lines.append(f"type wells written: {s['type_wells']} (one per reservoir unit with enough wells)")
     for note in s.get("messages", []) or []:
         lines.append(f"note: {note}")
     if paths:
@@ -226,6 +247,9 @@ def _settings(args: argparse.Namespace):
         workers=args.workers,
         units=args.units,
         unit_column=args.unit_column,
+        samples=args.samples,
+        seed=args.seed,
+        scheduler=args.scheduler,
     )
 
 
@@ -283,17 +307,31 @@ def _forecast(args: argparse.Namespace, out: TextIO, err: TextIO) -> int:
                 pressure_kind=args.pressure_kind, max_bytes=int(args.max_file_mb * 2**20),
                 dayfirst=None if args.date_order is None else args.date_order == "dmy",
             )
+            update = None
+            overrides = None
+            if args.db:
+                phase = "store"
+                bar(0.04, "appending to the history held in the store")
+                update = open_update(args.db, load, field_name=args.field_name)
+                load, overrides = update.load, update.overrides
             phase = "run"
-            result = run_field(load, settings=settings, progress=_scaled(bar, 0.05, 0.85))
+            result = run_field(load, settings=settings, overrides=overrides or None, progress=_scaled(bar, 0.05, 0.85))
+            if update is not None:
+                result.summary.update(update.summary())
             phase = "export"
             from core.export import write_outputs
 
             paths = write_outputs(result, out_dir, xlsx=not args.no_xlsx, progress=_scaled(bar, 0.85, 0.97))
+            if args.type_wells:
+                bar(0.96, "building type wells")
+                tw_path, n_tw = write_type_wells(load, result, out_dir)
+                paths[tw_path.name] = tw_path
+                result.summary["type_wells"] = n_tw
             changes = None
-            if args.db:
+            if update is not None:
                 phase = "store"
                 bar(0.97, "recording the run in the store")
-                changes = record_run(args.db, result, load, field_name=args.field_name, out_dir=out_dir)
+                changes = update.save(result, out_dir=out_dir)
                 if changes is not None:
                     paths[changes.name] = changes
             bar(1.0, "done")
@@ -334,6 +372,144 @@ def _internal(err: TextIO, exc: BaseException, debug: bool, phase: str) -> int:
     else:
         err.write("(run again with --debug for the traceback)\n")
     return EXIT_INTERNAL
+
+
+def write_type_wells(load: Any, result: Any, out_dir: Path) -> tuple[Path, int]:
+    """Write ``type_wells.csv`` (one type well per reservoir unit, from the production up to
+    the run's as-of month; :func:`core.type_wells.type_wells_by_unit` with its defaults) and
+    return its path and the number of type wells."""
+    from core.export import TYPE_WELLS_FILE
+    from core.type_wells import type_well_to_csv, type_wells_by_unit
+
+    prod = load.production
+    if result.as_of is not None:
+        prod = prod[prod["month"] <= result.as_of]
+    tws = type_wells_by_unit(prod, b_max=float(result.settings.b_max))
+    path = Path(out_dir) / TYPE_WELLS_FILE
+    type_well_to_csv(tws, path)
+    return path, len(tws)
+
+
+#: ``file`` value of the load-report lines written by the monthly update.
+MERGE_REPORT_FILE = "(monthly update)"
+
+
+def merge_report_lines(merge_report: Any, columns: Any) -> Any:
+    """The store's merge report (:meth:`core.storage.Store.append_load`) as load-report lines:
+    every conflict (``altered``, the newer file's value kept, both values given), every gap and
+    every well missing from the new file (``info``); months added and duplicates dropped as
+    one ``info`` line each (counts)."""
+    import pandas as pd
+
+    rep = merge_report
+    rows = []
+
+    def month(v: Any) -> str:
+        return "" if pd.isna(v) else pd.Timestamp(v).strftime("%Y-%m")
+
+    for r in rep[rep["action"] == "conflict"].itertuples(index=False):
+        rows.append({"well_id": r.well_id, "column": r.column, "value": r.new_value, "action": "altered",
+                     "reason": f"monthly update: {month(r.month)} held {r.previous_value}, new file {r.new_value}; "
+                               f"kept {r.kept or 'new'} (the newer file wins)"})
+    for r in rep[rep["action"].isin(["gap", "missing_from_new"])].itertuples(index=False):
+        what = ("months missing between the held history and the new file" if r.action == "gap"
+                else "well has no row in the new file")
+        span = f" {month(r.first_month)}..{month(r.last_month)}" if not pd.isna(r.first_month) else ""
+        n = "" if pd.isna(r.n_months) else f"{int(r.n_months)} "
+        rows.append({"well_id": r.well_id, "column": "", "value": "", "action": "info",
+                     "reason": f"monthly update: {n}{what}{span}".strip() + (f" ({r.detail})" if r.detail else "")})
+    for act, what in (("added", "well-months appended to the held history"),
+                      ("duplicate_dropped", "well-months already held with the same values (dropped)")):
+        n = int(pd.to_numeric(rep.loc[rep["action"] == act, "n_months"], errors="coerce").fillna(0).sum())
+        if n:
+            rows.append({"well_id": "", "column": "", "value": "", "action": "info",
+                         "reason": f"monthly update: {n:,} {what}"})
+    out = pd.DataFrame(rows, columns=["well_id", "column", "value", "action", "reason"])
+    out.insert(0, "file", MERGE_REPORT_FILE)
+    out.insert(1, "row", pd.array([pd.NA] * len(out), dtype="Int64"))
+    return out.reindex(columns=columns)
+
+
+class StoreUpdate:
+    """The batch command's monthly cycle with ``--db``: before the run, the new load is
+    appended to the history held for the field (conflicts reported) and the engineers'
+    overrides are read; after it, the run is saved and ``changes.csv`` written."""
+
+    def __init__(self, db: str, store: Any, field: str, load: Any, overrides: dict, merge_report: Any,
+                 held: int | None, previous: Any) -> None:
+        self.db, self.store, self.field = db, store, field
+        self.load, self.overrides, self.merge_report = load, overrides, merge_report
+        self.held, self.previous = held, previous
+
+    def summary(self) -> dict[str, Any]:
+        import pandas as pd
+
+        rep = self.merge_report
+        added = pd.to_numeric(rep.loc[rep["action"] == "added", "n_months"], errors="coerce").fillna(0).sum()
+        return {
+            "store_field": self.field,
+            "overrides_carried_forward": len(self.overrides),
+            "months_appended": int(added) if self.held is not None else 0,
+            "merge_conflicts": int((rep["action"] == "conflict").sum()),
+            "appended_to_dataset": self.held,
+        }
+
+    def save(self, result: Any, *, out_dir: Path) -> Path | None:
+        from core.changes import compare_runs
+        from core.export import CHANGES_FILE, write_csv
+        from core.storage import StoreError
+        from core.validation import InputError
+
+        try:
+            try:
+                self.store.save_run(result, field=self.field, load=self.load, merged_from=self.held,
+                                    inputs=dict(result.inputs), as_of_month=result.as_of)
+            finally:
+                self.store.close()
+        except StoreError as exc:
+            raise InputError(f"--db {self.db}: {exc}") from exc
+        if self.previous is None:
+            return None
+        changes = compare_runs(self.previous.wells, result.wells)
+        path = Path(out_dir) / CHANGES_FILE
+        write_csv(changes, path)
+        return path
+
+
+def open_update(db: str, load: Any, *, field_name: str | None) -> StoreUpdate:
+    """Open the store at ``db`` and prepare the monthly cycle for ``load``: the held history
+    of the field plus the new months (``Store.append_load``; conflicts and gaps go to the
+    load report), the overrides in force (``Store.well_overrides``) and the previous run
+    (for ``changes.csv``). Store problems raise :class:`core.validation.InputError`."""
+    import dataclasses
+
+    import pandas as pd
+    from core.validation import InputError
+
+    try:
+        from core.storage import StoreError, default_field_name, open_store
+    except ImportError as exc:  # pragma: no cover - a build without the store
+        raise InputError(f"--db: the store is not available in this build ({exc})") from exc
+    name = field_name or default_field_name(getattr(load, "file_name", "") or "field")
+    try:
+        store = open_store(db)
+    except StoreError as exc:
+        raise InputError(f"--db {db}: {exc}") from exc
+    try:
+        previous = store.latest_run(name, tables=())  # its wells table is enough
+        merged, merge_report, held = store.append_load(name, load)
+        overrides = store.well_overrides(name)
+    except StoreError as exc:
+        store.close()
+        raise InputError(f"--db {db}: {exc}") from exc
+    except BaseException:
+        store.close()
+        raise
+    lines = merge_report_lines(merge_report, merged.report.columns)
+    if len(lines):
+        report = pd.concat([merged.report, lines], ignore_index=True)
+        merged = dataclasses.replace(merged, report=report)
+    return StoreUpdate(db, store, name, merged, overrides, merge_report, held, previous)
 
 
 def record_run(db: str, result: Any, load: Any, *, field_name: str | None, out_dir: Path) -> Path | None:

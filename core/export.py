@@ -56,6 +56,20 @@ CSV_FILES = {
 }
 XLSX_FILE = "forecast.xlsx"
 CHANGES_FILE = "changes.csv"
+#: Field totals of the probabilistic forecasts (written when the run has them).
+FIELD_PERCENTILES_FILE = "field_percentiles.csv"
+#: Type wells per reservoir unit (``python -m core forecast ... --type-wells``).
+TYPE_WELLS_FILE = "type_wells.csv"
+
+#: How the probabilistic field totals are made (cover sheet and README).
+PROBABILISTIC_NOTE = (
+    "P90/P50/P10 (P90 = low estimate, the 10th percentile of the samples): moving-block "
+    "bootstrap of each well's log-rate decline residuals with a hindcast-measured level error "
+    "(core.probabilistic). Field totals are sums over wells of each sample, then percentiles "
+    "of those sums (not sums of well percentiles); wells are sampled independently. The "
+    "monthly percentile columns cover each well's deterministic forecast months; P10 months "
+    "after a well's deterministic end count in the EUR/remaining percentiles and field totals."
+)
 
 
 # --------------------------------------------------------------------------------------------
@@ -254,6 +268,19 @@ def table_to_csv_bytes(table: pd.DataFrame) -> bytes:
     return b"".join(csv_chunks(table))
 
 
+def _file_name(key: str) -> str:
+    return FIELD_PERCENTILES_FILE if key == "field_percentiles" else CSV_FILES[key]
+
+
+def field_percentiles_table(result: Any) -> pd.DataFrame | None:
+    """Field totals of the run's probabilistic forecasts (quantity, p90, p50, p10, mean,
+    n_wells, n_samples, method), or None when the run has none."""
+    prob = getattr(result, "probabilistic", None)
+    if prob is None:
+        return None
+    return prob.field
+
+
 def _result_tables(result: Any, wells: Iterable[str] | None = None) -> dict[str, pd.DataFrame]:
     tables = {
         "wells": result.wells,
@@ -261,6 +288,9 @@ def _result_tables(result: Any, wells: Iterable[str] | None = None) -> dict[str,
         "units": result.units,
         "load_report": result.load_report,
     }
+    fp = field_percentiles_table(result)
+    if fp is not None and wells is None:
+        tables["field_percentiles"] = fp
     if wells is not None:
         keep = sorted(set(map(str, wells)))
         tables["wells"] = result.wells[_isin(result.wells["well_id"], keep)]
@@ -295,7 +325,7 @@ def tables_to_csv_bytes(result: Any, *, wells: Iterable[str] | None = None) -> d
         ``{"wells.csv": b"...", "forecast_monthly.csv": ..., "units.csv": ..., "load_report.csv": ...}``
     """
     tables = _result_tables(result, wells)
-    return {CSV_FILES[k]: table_to_csv_bytes(v) for k, v in tables.items()}
+    return {_file_name(k): table_to_csv_bytes(v) for k, v in tables.items()}
 
 
 # --------------------------------------------------------------------------------------------
@@ -394,6 +424,8 @@ def _cover_rows(result: Any, notes: list[str]) -> list[tuple[str, Any]]:
     inputs = getattr(result, "inputs", None) or {}
     for key, value in inputs.items():
         rows.append((f"input: {key}", "" if value is None else value))
+    if getattr(result, "probabilistic", None) is not None:
+        rows.append(("probabilistic method", PROBABILISTIC_NOTE))
     rows.append(("cautions", CAUTIONS))
     rows.append(("formula neutralisation", NEUTRALISATION_NOTE))
     for note in notes:
@@ -698,6 +730,8 @@ def write_xlsx(
     if volume_sheet is not None:
         sheets.append(volume_sheet)
     sheets += [("units", tables["units"]), ("load_report", tables["load_report"])]
+    if "field_percentiles" in tables:
+        sheets.append(("field_percentiles", tables["field_percentiles"]))
     split: list[tuple[str, pd.DataFrame]] = []
     for name, table in sheets:
         if len(table) <= cap:
@@ -739,10 +773,10 @@ def write_outputs(
     steps = len(tables) + (1 if xlsx else 0)
     for i, (key, table) in enumerate(tables.items()):
         if progress is not None:
-            progress(i / steps, f"writing {CSV_FILES[key]}")
-        p = out / CSV_FILES[key]
+            progress(i / steps, f"writing {_file_name(key)}")
+        p = out / _file_name(key)
         write_csv(table, p)
-        paths[CSV_FILES[key]] = p
+        paths[_file_name(key)] = p
     if xlsx:
         if progress is not None:
             progress(len(tables) / steps, f"writing {XLSX_FILE}")

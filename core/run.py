@@ -18,7 +18,7 @@ from __future__ import annotations
 import dataclasses
 import math
 import time
-from collections.abc import Callable, Mapping
+from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
@@ -139,6 +139,18 @@ UNITS_EXTRA_COLUMNS = [
     "stage_evidence",
 ]
 
+#: Columns added to ``wells`` (after the others) when the run has probabilistic forecasts.
+PROB_WELLS_COLUMNS = [
+    "eur_oil_bbl_p90", "eur_oil_bbl_p50", "eur_oil_bbl_p10",
+    "remaining_oil_bbl_p90", "remaining_oil_bbl_p50", "remaining_oil_bbl_p10",
+    "econ_limit_date_p90", "econ_limit_date_p50", "econ_limit_date_p10",
+    "prob_method", "prob_samples",
+]
+#: Columns added to ``monthly`` (forecast months; blank in actual months) with probabilistic
+#: forecasts. They cover the deterministic forecast months; P10 months beyond a well's
+#: deterministic end are counted in the EUR/remaining percentiles and the field totals only.
+PROB_MONTHLY_COLUMNS = ["oil_bbl_p90", "oil_bbl_p50", "oil_bbl_p10"]
+
 #: ``status`` of a forecast well.
 STATUS_OK = "ok"
 
@@ -213,6 +225,17 @@ class RunSettings:
         Unit system of the *input* file (outputs are always field units). Default "field".
     unit_column : str, optional
         Name of the input column holding the reservoir unit. Default: recognised by the loader.
+    samples : int, optional
+        Bootstrap samples per well for the P90/P50/P10 forecasts
+        (:func:`core.probabilistic.probabilistic_field`); 0 (default) turns them off, else
+        20 to 100,000.
+    seed : int, optional
+        Seed of the probabilistic forecasts (a well's samples depend only on seed and well
+        id). Default 0.
+    scheduler : str, optional
+        Where the probabilistic chunks run: None (default) in this process, ``"local"`` a
+        local Dask cluster, or a Dask scheduler address (``tcp://host:8786``). Results are
+        the same.
     """
 
     econ_limit_bopd: float | None = None
@@ -230,6 +253,9 @@ class RunSettings:
     workers: int | None = None
     units: str = "field"
     unit_column: str | None = None
+    samples: int = 0
+    seed: int = 0
+    scheduler: str | None = None
 
     def __post_init__(self) -> None:
         # normalise and validate once; errors are InputError (a ValueError) with one message
@@ -279,6 +305,16 @@ class RunSettings:
             raise InputError(str(exc)) from exc
         if self.units not in ("field", "metric"):
             raise InputError(f"units must be 'field' or 'metric', got {self.units!r}")
+        for name in ("samples", "seed"):
+            v = getattr(self, name)
+            if isinstance(v, bool) or not isinstance(v, (int, np.integer)):
+                raise InputError(f"{name} must be a whole number, got {v!r}")
+        if self.samples != 0 and not 20 <= self.samples <= 100_000:
+            raise InputError(f"samples must be 0 (off) or from 20 to 100,000, got {self.samples}")
+        if self.seed < 0:
+            raise InputError(f"seed must be 0 or more, got {self.seed}")
+        if self.scheduler is not None and (not isinstance(self.scheduler, str) or not self.scheduler.strip()):
+            raise InputError(f"scheduler must be 'local' or a Dask scheduler address, got {self.scheduler!r}")
 
     @property
     def uses_economics(self) -> bool:
@@ -330,6 +366,10 @@ class RunResult:
         Input description: file name, content SHA-256, rows read/used/rejected, pressure kind.
     timings : dict
         Wall time per phase [s] (not part of the numbers; differs between runs).
+    probabilistic : ProbabilisticResult or None
+        The P90/P50/P10 forecasts (:mod:`core.probabilistic`) when ``settings.samples > 0``;
+        their per-well and per-month percentiles are also merged into ``wells`` and
+        ``monthly`` (:data:`PROB_WELLS_COLUMNS`, :data:`PROB_MONTHLY_COLUMNS`).
     """
 
     wells: pd.DataFrame
@@ -346,6 +386,7 @@ class RunResult:
     fluids: pd.DataFrame = field(default_factory=pd.DataFrame)
     inputs: dict[str, Any] = field(default_factory=dict)
     timings: dict[str, float] = field(default_factory=dict)
+    probabilistic: Any = None
 
 
 # --------------------------------------------------------------------------------------------
@@ -517,7 +558,6 @@ def run_field(
     """
     from core.decline import fit_field
     from core.fluids import classify_field
-    from core.forecast import forecast_field
     from core.stages import track_units, track_wells
 
     prog = progress or _noop_progress
@@ -551,13 +591,13 @@ def run_field(
 
     prog(0.25, "fitting Arps declines")
     t = time.perf_counter()
-    regime = stages.set_index("well_id")["regime_start"] if "regime_start" in stages.columns else None
+    regime = _regime(stages)
     ff = fit_field(prod, regime_start=regime, settings=dsettings, overrides=dict(overrides) if overrides else None)
     timings["fit"] = time.perf_counter() - t
 
     prog(0.65, "forecasting to the economic limit")
     t = time.perf_counter()
-    fsummary, fmonthly = forecast_field(ff.fits, prod, settings=dsettings, as_of=as_of)
+    fsummary, fmonthly = _forecast(ff.fits, prod, fluids, dsettings, as_of)
     timings["forecast"] = time.perf_counter() - t
 
     prog(0.85, "summarising reservoir units")
@@ -567,12 +607,112 @@ def run_field(
     t = time.perf_counter()
     wells = _assemble_wells(prod, header, report, fluids, stages, ff.fits, fsummary, actual)
     monthly = _assemble_monthly(prod, fmonthly, actual)
+    timings["assemble"] = time.perf_counter() - t
+    notes = list(getattr(ff, "messages", ()) or ())
+    prob = None
+    if settings.samples:
+        prog(0.9, f"probabilistic forecasts ({settings.samples} samples per well)")
+        t = time.perf_counter()
+        wells, monthly, prob, pnotes = _add_probabilistic(wells, monthly, prod, ff.fits, settings, dsettings, as_of,
+                                                          overrides, regime)
+        notes += pnotes
+        timings["probabilistic"] = time.perf_counter() - t
+    return _finish(
+        load, settings, overrides, prod_all, prod, as_of, report, wells, monthly, units_stage, stages,
+        ff.fits, getattr(ff, "candidates", pd.DataFrame()), fluids, notes, timings, t0, prog, prob,
+    )
+
+
+def _add_probabilistic(wells: pd.DataFrame, monthly: pd.DataFrame, prod: pd.DataFrame, fits: pd.DataFrame,
+                       settings: RunSettings, dsettings: Any, as_of: pd.Timestamp,
+                       overrides: Mapping[str, Any] | None, regime: Any):
+    """P90/P50/P10 forecasts (:func:`core.probabilistic.probabilistic_field`) merged into the
+    wells and monthly tables; returns (wells, monthly, ProbabilisticResult, notes).
+
+    Wells without a deterministic answer (not forecast) get blank percentiles. The monthly
+    percentile columns fill the forecast months of ``monthly``; P10 months after a well's
+    deterministic end (a sample that lasts longer) have no row there: they are counted in the
+    EUR and remaining percentiles and in the field totals, and a note gives their number.
+    """
+    from core.probabilistic import probabilistic_field
+
+    pr = probabilistic_field(
+        prod, fits, settings=dsettings, samples=int(settings.samples), seed=int(settings.seed),
+        scheduler=settings.scheduler, as_of=as_of, overrides=dict(overrides) if overrides else None,
+        regime_start=regime,
+    )
+    pw = pr.wells.assign(well_id=pr.wells["well_id"].astype(str)).set_index("well_id").reindex(
+        wells["well_id"].astype(str))
+    answered = wells["eur_oil_bbl"].notna().to_numpy()
+    out = wells.copy()
+    for c in PROB_WELLS_COLUMNS:
+        v = pw[c] if c in pw.columns else pd.Series(np.nan, index=pw.index)
+        if c.startswith("econ_limit_date"):
+            out[c] = _month_start(v).where(answered).to_numpy()
+        elif c == "prob_method":
+            out[c] = v.fillna("").astype(object).where(answered, "").to_numpy()
+        elif c == "prob_samples":
+            out[c] = pd.array(np.where(answered, int(settings.samples), 0), dtype="Int64")
+            out.loc[~answered, c] = pd.NA
+        else:
+            out[c] = _finite_or_nan(v).where(answered).to_numpy()
+    # monthly: match (well, month) of the forecast rows
+    m = monthly[MONTHLY_COLUMNS].copy()
+    cats = m["well_id"].cat.categories
+    mi = m["month"].to_numpy(dtype="datetime64[M]").astype(np.int64)
+    key_m = m["well_id"].cat.codes.to_numpy().astype(np.int64) * 100_000 + mi
+    pm = pr.monthly
+    pc = cats.get_indexer(pd.Index(pm["well_id"].astype(str))).astype(np.int64)
+    key_p = pc * 100_000 + pd.to_datetime(pm["month"]).to_numpy(dtype="datetime64[M]").astype(np.int64)
+    at = pd.Index(key_m).get_indexer(key_p)
+    is_fc = (m["kind"] == "forecast").to_numpy()
+    hit = at >= 0
+    hit[hit] &= is_fc[at[hit]]
+    for c in PROB_MONTHLY_COLUMNS:
+        arr = np.full(len(m), np.nan)
+        arr[at[hit]] = pm[c].to_numpy(dtype=float)[hit]
+        m[c] = arr
+    notes = [f"probabilistic forecasts: {int(settings.samples)} samples per well, seed {int(settings.seed)}; "
+             f"field totals by {pr.field['method'].iloc[0] if len(pr.field) else 'sample-wise sums'}"]
+    notes += [str(x) for x in pr.messages]
+    tail = int((~hit).sum())
+    if tail:
+        notes.append(
+            f"{tail:,} well-months of the P10 forecast lie after the wells' deterministic forecast end; "
+            "they are in the EUR and remaining percentiles and in field_percentiles, not in the "
+            "monthly percentile columns"
+        )
+    return out, m, pr, notes
+
+
+def _regime(stages: pd.DataFrame) -> pd.Series | None:
+    return stages.set_index("well_id")["regime_start"] if "regime_start" in stages.columns else None
+
+
+def _forecast(fits: pd.DataFrame, prod: pd.DataFrame, fluids: pd.DataFrame, dsettings: Any,
+              as_of: pd.Timestamp) -> tuple[pd.DataFrame, pd.DataFrame]:
+    """The forecast of every well of ``prod`` from its fits (per well: results of a well do
+    not depend on the other wells in the table, which the incremental re-runs rely on)."""
+    from core.forecast import forecast_field
+
+    return forecast_field(fits, prod, settings=dsettings, as_of=as_of)
+
+
+def _finish(load, settings, overrides, prod_all, prod, as_of, report, wells, monthly, units_stage, stages,
+            fits, candidates, fluids, notes, timings, t0, prog, prob=None) -> RunResult:
+    """Units, summary, run-level notes and the :class:`RunResult` (shared by the full run and
+    the incremental re-runs, so all give the same tables)."""
+    t = time.perf_counter()
     units = _assemble_units(units_stage, wells)
     summary = _summary(wells, settings, as_of, load)
     # notes of the decline engine (e.g. overrides naming wells not in the table) are never
     # silent: they go to the summary and, as run-level "info" lines, to the load report
-    notes = [str(m) for m in getattr(ff, "messages", ()) or ()]
+    notes = [str(m) for m in notes]
     summary["messages"] = notes
+    if prob is not None and len(prob.field):
+        for _, r in prob.field.iterrows():
+            for lab in ("p90", "p50", "p10"):
+                summary[f"{r['quantity']}_field_{lab}"] = float(r[lab])
     if notes:
         extra = pd.DataFrame(
             {
@@ -586,7 +726,7 @@ def run_field(
             }
         )
         report = pd.concat([report, extra.reindex(columns=report.columns)], ignore_index=True)
-    timings["assemble"] = time.perf_counter() - t
+    timings["assemble"] = timings.get("assemble", 0.0) + time.perf_counter() - t
     timings["run_total"] = time.perf_counter() - t0
     prog(1.0, "run complete")
 
@@ -604,16 +744,17 @@ def run_field(
         monthly=monthly,
         units=units,
         load_report=report,
-        candidates=getattr(ff, "candidates", pd.DataFrame()),
+        candidates=candidates,
         stages=stages,
         settings=settings,
         version=__version__,
         as_of=as_of,
         summary=summary,
-        fits=ff.fits,
+        fits=fits,
         fluids=fluids,
         inputs=inputs,
         timings=timings,
+        probabilistic=prob,
     )
 
 
@@ -909,3 +1050,471 @@ def _summary(wells: pd.DataFrame, settings: RunSettings, as_of: pd.Timestamp, lo
         "rows_read": int(getattr(load, "rows_read", 0)),
         "rows_rejected": int(getattr(load, "rows_rejected", 0)),
     }
+
+
+# --------------------------------------------------------------------------------------------
+# incremental re-runs
+# --------------------------------------------------------------------------------------------
+#: Settings that change the fits (or the tables the fits are made from): a change needs a
+#: full :func:`run_field`. ``workers`` is here because it sets the fit batches, and the batch
+#: padding moves a fit in its last bits.
+FIT_SETTINGS = ("as_of", "b_max", "units", "unit_column", "workers")
+
+#: Settings that change only the forecast: :func:`rerun_forecast` keeps the fits. The
+#: terminal decline is one of them although the "no decline" wells' fits carry it as their
+#: decline (the decline engine's conservative rule); those fits are updated in place.
+FORECAST_SETTINGS = ("econ_limit_bopd", "econ_limit_mcfd", "oil_price", "gas_price", "opex_per_month", "nri",
+                     "wi", "severance_tax", "terminal_decline", "horizon_years", "samples", "seed", "scheduler")
+
+_PAD_WELL = "\x00padding-well"  # sorts before any well id; never in a loader's table
+
+
+def _settings_diff(a: RunSettings, b: RunSettings) -> list[str]:
+    return [f.name for f in dataclasses.fields(RunSettings) if getattr(a, f.name) != getattr(b, f.name)]
+
+
+def _check_same_load(previous: RunResult, load: Any) -> None:
+    prev = previous.inputs or {}
+    for key in ("content_sha256", "rows_used"):
+        old, new = prev.get(key), getattr(load, key, None)
+        if old not in (None, "") and new not in (None, "") and old != new:
+            raise ValueError(
+                f"the load differs from the previous run's ({key}: {old!r} then {new!r}); "
+                "an incremental re-run needs the same production table: use run_field"
+            )
+
+
+def _prod_cut(load: Any, settings: RunSettings) -> tuple[pd.DataFrame, pd.DataFrame, pd.Timestamp]:
+    prod_all: pd.DataFrame = load.production
+    if prod_all.empty:
+        raise InputError("the production file has no usable rows (see the load report)")
+    as_of = settings.as_of if settings.as_of is not None else pd.Timestamp(prod_all["month"].max())
+    prod = prod_all[prod_all["month"] <= as_of] if settings.as_of is not None else prod_all
+    return prod_all, prod, as_of
+
+
+def _override_key_well(key: Any) -> str:
+    return str(key[0] if isinstance(key, tuple) else key)
+
+
+def _override_texts(overrides: Mapping[str, Any] | None, wells: pd.Index, stream: str) -> pd.Series:
+    """The ``override`` text each well's ``stream`` fit would carry (as the decline engine
+    writes it: ``WellOverride.describe()``; a ``(well, stream)`` key beats the well's key)."""
+    out = pd.Series("", index=wells, dtype=object)
+    if not overrides:
+        return out
+    for key, ov in overrides.items():
+        if isinstance(key, tuple):
+            if key[1] != stream:
+                continue
+        elif (key, stream) in overrides:
+            continue
+        w = _override_key_well(key)
+        if w in out.index:
+            out[w] = ov.describe()
+    return out
+
+
+def _unknown_override_note(overrides: Mapping[str, Any] | None, known: pd.Index) -> list[str]:
+    if not overrides:
+        return []
+    k = set(known)
+    unknown = sorted({_override_key_well(key) for key in overrides if _override_key_well(key) not in k})
+    return ["overrides for wells not in the table were not applied: " + ", ".join(unknown)] if unknown else []
+
+
+def _batch_widths(n_used: np.ndarray, st: Any) -> np.ndarray:
+    """Padded width of each well's fit batch as ``core.decline.fit_field`` lays the batches out
+    (blocks of ``block_wells`` wells; fittable wells sorted by months used, in chunks of
+    ``chunk_wells``, smaller with several workers); 0 for a well in no batch. A fit depends on
+    its batch only through this width (the padding changes the summation order)."""
+    from core.decline import _resolve_workers
+
+    n = n_used.size
+    out = np.zeros(n, dtype=np.int64)
+    for w0 in range(0, n, st.block_wells):
+        nu = n_used[w0:w0 + st.block_wells]
+        fw = np.flatnonzero(nu >= st.min_months)
+        if fw.size == 0:
+            continue
+        order = fw[np.argsort(nu[fw], kind="stable")]
+        cs = st.chunk_wells
+        workers = _resolve_workers(st.workers, fw.size, cs)
+        if workers > 1:
+            cs = min(cs, max(256, -(-fw.size // (6 * workers))))
+        starts = np.arange(0, order.size, cs)
+        width = np.maximum.reduceat(nu[order], starts)
+        out[w0 + order] = width[np.arange(order.size) // cs]
+    return out
+
+
+def _padding_rows(widths: dict[str, int], columns: pd.Index, has_gas: bool) -> pd.DataFrame:
+    """A made-up well whose fit window holds exactly ``widths[stream]`` months per stream: fitted
+    with the re-run wells, it pads their batch to the width of the full run's batch, so their
+    fits are the full run's to the last bit. Its rows are dropped from every result."""
+    w_oil = max(int(widths.get("oil", 0)), 6)
+    w_gas = max(int(widths.get("gas", 0)), 6)
+    n = max(w_oil, w_gas)
+    months = pd.date_range("1900-01-01", periods=n, freq="MS")
+    k = np.arange(n, dtype=float)
+    dim = months.days_in_month.to_numpy(float)
+    oil = np.where(k >= n - w_oil, 100.0 * np.exp(-0.05 * k), 0.0)  # declining: peak first
+    gas = np.where(k >= n - w_gas, 300.0 * np.exp(-0.05 * k), 0.0) if has_gas else np.full(n, np.nan)
+    df = pd.DataFrame({
+        "well_id": _PAD_WELL, "month": months.to_numpy(dtype="datetime64[ns]"), "unit": "unassigned",
+        "oil_bbl": oil * dim, "gas_mcf": gas * dim, "water_bbl": 0.0, "days_on": dim, "days_on_given": True,
+        "days_in_month": dim.astype(int), "oil_rate_bbl_d": oil, "gas_rate_mcf_d": gas,
+        "oil_rate_cal_bbl_d": oil,
+    })
+    return df.reindex(columns=columns)
+
+
+def _stream_table(fits: pd.DataFrame, stream: str) -> pd.DataFrame:
+    return fits[fits["stream"].astype(str) == stream]
+
+
+def _refit(prod: pd.DataFrame, fits_prev: pd.DataFrame, regime: Any, dsettings: Any,
+           overrides: Mapping[str, Any] | None, wells: list[str]) -> tuple[pd.DataFrame, pd.DataFrame, list[str]]:
+    """Fit ``wells`` as the full run would (same batch widths); returns their fits and
+    candidates, and every well whose fit had to be redone (the named ones plus any whose
+    batch width moves because the named wells' windows changed)."""
+    from core.decline import fit_field
+
+    stream_col = fits_prev["stream"].astype(str).to_numpy()
+    streams = [s for s in dsettings.streams if (stream_col == s).any()]
+    has_gas = "gas" in streams
+    tables = {s: fits_prev[stream_col == s] for s in streams}
+    order = {s: tables[s]["well_id"].astype(str).to_numpy() for s in streams}
+    n_prev = {s: tables[s]["n_months_used"].to_numpy(dtype=np.int64) for s in streams}
+    w_prev = {s: _batch_widths(n_prev[s], dsettings) for s in streams}
+    pos = {s: pd.Index(order[s]) for s in streams}
+    ov_all = dict(overrides) if overrides else {}
+
+    def fit(ws: list[str], widths: dict[str, int] | None):
+        sub = prod[prod["well_id"].isin(ws)]
+        if widths is not None:
+            sub = pd.concat([_padding_rows(widths, prod.columns, has_gas), sub], ignore_index=True)
+        ov = {k: v for k, v in ov_all.items() if _override_key_well(k) in set(ws)}
+        ff = fit_field(sub, regime_start=regime, settings=dsettings, overrides=ov or None)
+        keep = ff.fits["well_id"].astype(str) != _PAD_WELL
+        keep_c = ff.candidates["well_id"].astype(str) != _PAD_WELL
+        return ff.fits[keep], ff.candidates[keep_c]
+
+    todo = sorted(set(wells))
+    guess = {w: {s: int(w_prev[s][pos[s].get_loc(w)]) if w in pos[s] else 0 for s in streams} for w in todo}
+    for _ in range(3):
+        # fit with the guessed widths, grouped by width
+        groups: dict[tuple, list[str]] = {}
+        for w in todo:
+            groups.setdefault(tuple(guess[w][s] for s in streams), []).append(w)
+        parts_f, parts_c = [], []
+        for key, ws in groups.items():
+            f, c = fit(ws, dict(zip(streams, key)))
+            parts_f.append(f)
+            parts_c.append(c)
+        new_f = pd.concat(parts_f, ignore_index=True)
+        new_c = pd.concat(parts_c, ignore_index=True)
+        # the widths of the full run with these wells' new windows
+        ok = True
+        redo: set[str] = set(todo)
+        new_stream = new_f["stream"].astype(str).to_numpy()
+        for s in streams:
+            nf = new_f[new_stream == s]
+            n_new = n_prev[s].copy()
+            ix = pos[s].get_indexer(pd.Index(nf["well_id"].astype(str)))
+            n_new[ix] = nf["n_months_used"].to_numpy(dtype=np.int64)
+            w_new = _batch_widths(n_new, dsettings)
+            moved = set(order[s][w_new != w_prev[s]]) - set(todo)
+            redo |= moved
+            for w in todo:
+                if w in pos[s] and guess[w][s] != int(w_new[pos[s].get_loc(w)]):
+                    ok = False
+            for w in redo:
+                guess.setdefault(w, {})[s] = int(w_new[pos[s].get_loc(w)])
+        if ok and redo == set(todo):
+            return new_f, new_c, todo
+        todo = sorted(redo)
+    raise RuntimeError("incremental re-fit did not settle on the batch layout")  # pragma: no cover
+
+
+def _replace_rows(prev: pd.DataFrame, new: pd.DataFrame, keys: list[str]) -> pd.DataFrame:
+    """``prev`` with the rows matching ``new`` on ``keys`` replaced in place (same order,
+    same dtypes)."""
+    if new.empty:
+        return prev
+    pk = pd.MultiIndex.from_frame(prev[keys].astype(str)) if len(keys) > 1 else pd.Index(prev[keys[0]].astype(str))
+    nk = pd.MultiIndex.from_frame(new[keys].astype(str)) if len(keys) > 1 else pd.Index(new[keys[0]].astype(str))
+    at = pk.get_indexer(nk)
+    if (at < 0).any():
+        raise ValueError("a re-run row has no place in the previous run's table")
+    cols = {}
+    for c in prev.columns:
+        col = prev[c]
+        if isinstance(col.dtype, np.dtype):
+            arr = col.to_numpy(copy=True)
+            arr[at] = new[c].to_numpy(dtype=arr.dtype)
+        else:
+            arr = col.array.copy()
+            arr[at] = new[c].array
+        cols[c] = pd.Series(arr, index=prev.index, dtype=col.dtype, copy=False)
+    return pd.DataFrame(cols, index=prev.index, copy=False)
+
+
+def _replace_candidates(prev: pd.DataFrame, new: pd.DataFrame, wells: list[str], streams: list[str]) -> pd.DataFrame:
+    """Candidates with the re-fitted wells' rows swapped, in the full run's order (stream, then
+    well id and family within each block of wells)."""
+    keep = prev[~prev["well_id"].astype(str).isin(wells)]
+    both = pd.concat([keep, new], ignore_index=True)
+    s_rank = both["stream"].astype(str).map({s: i for i, s in enumerate(streams)}).fillna(len(streams))
+    key = pd.DataFrame({"s": s_rank.to_numpy(), "w": both["well_id"].astype(str).to_numpy(),
+                        "f": both["family"].astype(str).to_numpy()})
+    order = key.sort_values(["s", "w", "f"], kind="stable").index.to_numpy()
+    return both.take(order).reset_index(drop=True)
+
+
+def _forecast_rows(fmonthly: pd.DataFrame) -> dict[str, np.ndarray]:
+    def col(v: Any) -> np.ndarray:
+        v = np.asarray(v, dtype=float)
+        return np.where(np.isfinite(v), v, np.nan)
+
+    return {
+        "month": pd.to_datetime(fmonthly["month"]).to_numpy(dtype="datetime64[ns]"),
+        "oil_bbl": col(_col(fmonthly, "oil_bbl")),
+        "gas_mcf": col(_col(fmonthly, "gas_mcf")),
+        "water_bbl": col(_col(fmonthly, "water_bbl")),
+        "oil_rate_bopd": col(_col(fmonthly, "oil_rate_bopd")),
+        "cum_oil_bbl": col(_col(fmonthly, "cum_oil_bbl")),
+    }
+
+
+def _splice_monthly(prev: pd.DataFrame, fmonthly: pd.DataFrame, wells: list[str]) -> pd.DataFrame:
+    """``prev`` (the assembled monthly table) with the forecast months of ``wells`` replaced by
+    ``fmonthly`` (their new forecast), placed after each well's actual months as the full
+    assembly places them."""
+    cats = prev["well_id"].cat.categories
+    codes = prev["well_id"].cat.codes.to_numpy()
+    kind = prev["kind"].cat.codes.to_numpy()
+    fc_code = int(list(prev["kind"].cat.categories).index("forecast"))
+    wcodes = cats.get_indexer(pd.Index(wells))
+    wcodes = wcodes[wcodes >= 0]
+    drop = np.isin(codes, wcodes) & (kind == fc_code)
+    keep = np.flatnonzero(~drop)
+    k_codes = codes[keep]
+    new_codes = cats.get_indexer(pd.Index(fmonthly["well_id"].astype(str)))
+    if (new_codes < 0).any():
+        raise ValueError("a re-run forecast names a well that the previous run does not have")
+    order = np.lexsort((pd.to_datetime(fmonthly["month"]).to_numpy(dtype="datetime64[ns]"), new_codes))
+    fm = fmonthly.iloc[order]
+    new_codes = new_codes[order]
+    at = np.searchsorted(k_codes, new_codes, side="right")
+    rows = _forecast_rows(fm)
+    out = {
+        "well_id": pd.Categorical.from_codes(np.insert(k_codes, at, new_codes), categories=cats),
+        "month": np.insert(prev["month"].to_numpy()[keep], at, rows["month"]),
+        "kind": pd.Categorical.from_codes(np.insert(kind[keep], at, np.full(len(fm), fc_code, dtype=kind.dtype)),
+                                          categories=prev["kind"].cat.categories),
+    }
+    for c in ("oil_bbl", "gas_mcf", "water_bbl", "oil_rate_bopd", "cum_oil_bbl"):
+        out[c] = np.insert(prev[c].to_numpy()[keep], at, rows[c])
+    return pd.DataFrame(out)[MONTHLY_COLUMNS]
+
+
+def _deterministic_tables(previous: RunResult) -> tuple[pd.DataFrame, pd.DataFrame]:
+    """The previous wells and monthly tables without the probabilistic columns."""
+    w = previous.wells
+    m = previous.monthly
+    if any(c in w.columns for c in PROB_WELLS_COLUMNS):
+        w = w[[c for c in w.columns if c not in PROB_WELLS_COLUMNS]]
+    if list(m.columns) != MONTHLY_COLUMNS:
+        m = m[MONTHLY_COLUMNS]
+    return w, m
+
+
+def _units_stage_view(previous: RunResult) -> pd.DataFrame:
+    """The stage tracker's unit view as kept in the previous run's units table (stage columns
+    do not depend on the fits)."""
+    return previous.units
+
+
+def rerun_wells(
+    previous: RunResult,
+    load: Any,
+    *,
+    settings: RunSettings,
+    overrides: Mapping[str, Any] | None,
+    wells: Sequence[str],
+) -> RunResult:
+    """Re-fit and re-forecast only ``wells`` (e.g. after an override changed), keeping every
+    other well of ``previous``.
+
+    The result equals a full :func:`run_field` with the same load, settings and overrides,
+    table for table: the fluid typing, stages and regime starts are reused (they do not
+    depend on the fits or overrides); the named wells are fitted in a batch padded to the
+    width of their batch in a full run (so their fits match to the last bit); a well whose
+    batch width moves because of the change is re-fitted too, and so is any well whose
+    override in ``overrides`` differs from the one its previous fit carries. Unit totals,
+    the summary and the run notes are recomputed.
+
+    Parameters
+    ----------
+    previous : RunResult
+        A run of the same load (same content and rows) and settings.
+    load : LoadResult
+        The loaded production (the one ``previous`` was made from).
+    settings : RunSettings
+        Must equal ``previous.settings``; for forecast-only changes use :func:`rerun_forecast`.
+    overrides : mapping of str to WellOverride, or None
+        The complete override set of the new run (not only the changed wells).
+    wells : sequence of str
+        Wells to re-fit (wells not in the production table are ignored).
+
+    Raises
+    ------
+    ValueError
+        When the settings or the load differ from the previous run's.
+    """
+    t0 = time.perf_counter()
+    diff = _settings_diff(previous.settings, settings)
+    if diff:
+        raise ValueError(
+            "rerun_wells keeps the other wells' forecasts, so the settings must equal the previous "
+            f"run's; these differ: {', '.join(diff)} (use rerun_forecast or run_field)"
+        )
+    _check_same_load(previous, load)
+    prod_all, prod, as_of = _prod_cut(load, settings)
+    dsettings = decline_settings(settings)
+    fits_prev = previous.fits
+    streams = [s for s in dsettings.streams if (fits_prev["stream"].astype(str) == s).any()]
+    # wells named, plus wells whose override changed without being named
+    named = {str(w) for w in wells}
+    for s in streams:
+        ft = _stream_table(fits_prev, s)
+        ids = pd.Index(ft["well_id"].astype(str))
+        want = _override_texts(overrides, ids, s)
+        have = ft["override"].fillna("").astype(str).to_numpy()
+        named |= set(ids[want.to_numpy() != have])
+    in_prod = set(_stream_table(fits_prev, streams[0])["well_id"].astype(str)) if streams else set()
+    named = sorted(w for w in named if w in in_prod)
+    timings: dict[str, float] = {}
+    t = time.perf_counter()
+    if named:
+        new_f, new_c, refit = _refit(prod, fits_prev, _regime(previous.stages), dsettings, overrides, named)
+        fits = _replace_rows(fits_prev, new_f, ["well_id", "stream"])
+        cands = _replace_candidates(previous.candidates, new_c, refit, streams)
+    else:
+        refit, fits, cands = [], fits_prev, previous.candidates
+    timings["fit"] = time.perf_counter() - t
+    t = time.perf_counter()
+    wells_t, monthly = _deterministic_tables(previous)
+    if refit:
+        sub = prod[prod["well_id"].isin(refit)]
+        sub_fits = fits[fits["well_id"].astype(str).isin(refit)]
+        fluids = previous.fluids
+        fsum, fmon = _forecast(sub_fits, sub, fluids[fluids["well_id"].astype(str).isin(refit)], dsettings, as_of)
+        timings["forecast"] = time.perf_counter() - t
+        t = time.perf_counter()
+        header = load.wells
+        report0 = load.report.iloc[0:0]
+        stg = previous.stages
+        new_w = _assemble_wells(
+            sub, header[header["well_id"].astype(str).isin(refit)], report0,
+            fluids[fluids["well_id"].astype(str).isin(refit)], stg[stg["well_id"].astype(str).isin(refit)],
+            sub_fits, fsum, _actuals_per_well(sub),
+        )
+        wells_t = _replace_rows(wells_t, new_w, ["well_id"])
+        monthly = _splice_monthly(monthly, fmon, refit)
+        timings["assemble"] = time.perf_counter() - t
+    notes = _unknown_override_note(overrides, pd.Index(pd.unique(prod["well_id"].astype(str))))
+    prob = None
+    if settings.samples:
+        # the level-error calibration pools every well's hindcast miss, so one well's new fit
+        # moves every well's samples: the probabilistic part is recomputed for the whole field
+        t = time.perf_counter()
+        wells_t, monthly, prob, pnotes = _add_probabilistic(wells_t, monthly, prod, fits, settings, dsettings, as_of,
+                                                            overrides, _regime(previous.stages))
+        notes += pnotes
+        timings["probabilistic"] = time.perf_counter() - t
+    res = _finish(
+        load, settings, overrides, prod_all, prod, as_of, load.report.copy(), wells_t, monthly,
+        _units_stage_view(previous), previous.stages, fits, cands, previous.fluids, notes, timings, t0,
+        _noop_progress, prob,
+    )
+    res.timings["wells_refitted"] = float(len(refit))
+    return res
+
+
+def rerun_forecast(
+    previous: RunResult,
+    load: Any,
+    *,
+    settings: RunSettings,
+    overrides: Mapping[str, Any] | None = None,
+) -> RunResult:
+    """Re-forecast every well from the previous run's fits after a forecast-only change
+    (:data:`FORECAST_SETTINGS`: economic limit or its inputs, horizon, terminal decline).
+
+    The fits, fit candidates, fluid typing and stages are kept; the result equals a full
+    :func:`run_field` with the same inputs. A changed terminal decline also updates the
+    decline of the "no decline" wells' fits, which the decline engine sets to the terminal
+    decline (its conservative rule); nothing else in a fit depends on it.
+
+    Raises
+    ------
+    ValueError
+        When a setting that changes the fits differs (:data:`FIT_SETTINGS`: as-of month,
+        b max, input units, unit column, workers), naming it; when the overrides differ from
+        the ones the previous fits carry (use :func:`rerun_wells`); when the load differs.
+    """
+    t0 = time.perf_counter()
+    diff = _settings_diff(previous.settings, settings)
+    refit_needed = [d for d in diff if d not in FORECAST_SETTINGS]
+    if refit_needed:
+        raise ValueError(
+            "these settings change the fits, so the forecast cannot be re-run on the kept fits: "
+            f"{', '.join(refit_needed)} (use run_field)"
+        )
+    _check_same_load(previous, load)
+    fits = previous.fits
+    for s in ("oil", "gas"):
+        ft = _stream_table(fits, s)
+        if ft.empty:
+            continue
+        want = _override_texts(overrides, pd.Index(ft["well_id"].astype(str)), s).to_numpy()
+        bad = ft["well_id"].astype(str).to_numpy()[want != ft["override"].fillna("").astype(str).to_numpy()]
+        if bad.size:
+            raise ValueError(
+                "the overrides differ from the ones the previous fits carry for "
+                f"{', '.join(sorted(set(bad))[:10])}: use rerun_wells for those wells first"
+            )
+    prod_all, prod, as_of = _prod_cut(load, settings)
+    dsettings = decline_settings(settings)
+    timings: dict[str, float] = {}
+    if settings.terminal_decline != previous.settings.terminal_decline:
+        # the decline engine's conservative rule: "no decline" wells decline at the terminal decline
+        flat = fits["status"].fillna("").astype(str).str.startswith("no_decline").to_numpy()
+        if flat.any():
+            fits = fits.copy()
+            di = fits["di"].to_numpy(dtype=float, copy=True)
+            di[flat] = dsettings.d_lim_nominal
+            fits["di"] = di
+    t = time.perf_counter()
+    fsummary, fmonthly = _forecast(fits, prod, previous.fluids, dsettings, as_of)
+    timings["forecast"] = time.perf_counter() - t
+    t = time.perf_counter()
+    wells = _assemble_wells(prod, load.wells, load.report, previous.fluids, previous.stages, fits, fsummary,
+                            _actuals_per_well(prod))
+    monthly = _assemble_monthly(prod, fmonthly, None)
+    timings["assemble"] = time.perf_counter() - t
+    notes = _unknown_override_note(overrides, pd.Index(pd.unique(prod["well_id"].astype(str))))
+    prob = None
+    if settings.samples:
+        t = time.perf_counter()
+        wells, monthly, prob, pnotes = _add_probabilistic(wells, monthly, prod, fits, settings, dsettings, as_of,
+                                                          overrides, _regime(previous.stages))
+        notes += pnotes
+        timings["probabilistic"] = time.perf_counter() - t
+    return _finish(
+        load, settings, overrides, prod_all, prod, as_of, load.report.copy(), wells, monthly,
+        _units_stage_view(previous), previous.stages, fits, previous.candidates, previous.fluids, notes,
+        timings, t0, _noop_progress, prob,
+    )

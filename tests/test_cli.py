@@ -20,6 +20,7 @@ FORECAST_OPTIONS = [
     "--opex-per-month", "--nri", "--wi", "--severance-tax", "--as-of", "--b-max",
     "--terminal-decline", "--horizon-years", "--workers", "--units", "--unit-column", "--db",
     "--field-name", "--no-xlsx", "--progress", "--quiet", "--debug", "--date-order",
+    "--samples", "--seed", "--scheduler", "--type-wells",
 ]
 
 

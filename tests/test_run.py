@@ -380,3 +380,229 @@ def test_override_for_an_unknown_well_is_reported(field_files, result):
     assert any("NO-SUCH-WELL" in m for m in res.summary["messages"])
     rep = res.load_report
     assert ((rep["file"] == "(run)") & rep["reason"].str.contains("NO-SUCH-WELL")).sum() == 1
+
+
+# ------------------------------------------------------------------------------ incremental re-runs
+# Reference: the full run itself (run_field on the same load, settings and overrides). The
+# incremental steps must give the same tables to the last bit (check_exact), which is the
+# contract the dashboard relies on.
+_TABLES = ("wells", "monthly", "units", "fits", "candidates", "load_report")
+
+
+def _assert_same_run(inc, full):
+    for name in _TABLES:
+        pd.testing.assert_frame_equal(getattr(inc, name), getattr(full, name), check_exact=True, obj=name)
+    assert inc.summary == full.summary
+
+
+@pytest.fixture(scope="module")
+def sample_base():
+    if not SAMPLE_PROD.exists():
+        pytest.skip("sample field not generated yet")
+    s = RunSettings(workers=1)
+    load = load_inputs(SAMPLE_PROD, wells_path=SAMPLE_HEADER, settings=s)
+    return load, s, run_field(load, settings=s)
+
+
+def test_rerun_wells_equals_the_full_run_and_an_override_removed(sample_base):
+    from core.decline import WellOverride
+    from core.run import rerun_wells
+
+    load, s, base = sample_base
+    ok = base.wells.loc[base.wells["status"] == STATUS_OK, "well_id"].tolist()
+    w1, w2, w3 = ok[2], ok[9], ok[15]
+    months = load.production.loc[load.production["well_id"] == w3, "month"].sort_values()
+    ovs = {
+        w1: WellOverride(b=0.3, reason="analogue", author="t"),
+        w2: WellOverride(model="exponential", fit_start=months.iloc[len(months) // 2] if w2 == w3 else None,
+                         reason="forced", author="t"),
+        w3: WellOverride(exclude_months=tuple(months.iloc[-6:-4]), fit_end=months.iloc[-2], reason="test", author="t"),
+    }
+    full = run_field(load, settings=s, overrides=ovs)
+    inc = rerun_wells(base, load, settings=s, overrides=ovs, wells=[w1, w2, w3])
+    _assert_same_run(inc, full)
+    assert inc.timings["wells_refitted"] == 3
+    assert "b=0.3" in inc.wells.set_index("well_id").loc[w1, "override"]
+    # removing one override (the well is named): back to the full run without it
+    fewer = {k: v for k, v in ovs.items() if k != w1}
+    _assert_same_run(rerun_wells(inc, load, settings=s, overrides=fewer, wells=[w1]),
+                     run_field(load, settings=s, overrides=fewer))
+    # a changed override the caller forgot to name is found from the fits' override column
+    _assert_same_run(rerun_wells(inc, load, settings=s, overrides=fewer, wells=[]),
+                     run_field(load, settings=s, overrides=fewer))
+
+
+def test_rerun_wells_when_the_override_widens_the_fit_batch(sample_base):
+    from core.decline import WellOverride
+    from core.run import rerun_wells
+
+    load, s, base = sample_base
+    # the longest history, fitted from its first month: more months than any fit window, so
+    # the padded width of the whole batch changes and every fitted well is redone
+    p = load.production
+    longest = p.groupby("well_id")["month"].count().idxmax()
+    first = p.loc[p["well_id"] == longest, "month"].min()
+    ovs = {longest: WellOverride(fit_start=first, reason="whole life", author="t")}
+    full = run_field(load, settings=s, overrides=ovs)
+    assert full.fits["n_months_used"].max() > base.fits["n_months_used"].max()
+    inc = rerun_wells(base, load, settings=s, overrides=ovs, wells=[longest])
+    _assert_same_run(inc, full)
+    assert inc.timings["wells_refitted"] > 1
+
+
+def test_rerun_forecast_equals_the_full_run(sample_base):
+    from core.run import rerun_forecast
+
+    load, s, base = sample_base
+    for s2 in (RunSettings(workers=1, econ_limit_bopd=4.0, horizon_years=25.0, terminal_decline=0.1, econ_limit_mcfd=20.0),
+               RunSettings(workers=1, oil_price=65.0, gas_price=2.0, opex_per_month=2500.0, nri=0.8, severance_tax=0.05)):
+        _assert_same_run(rerun_forecast(base, load, settings=s2), run_field(load, settings=s2))
+
+
+def test_incremental_reruns_refuse_changes_that_need_a_refit(sample_base):
+    from core.run import rerun_forecast, rerun_wells
+
+    load, s, base = sample_base
+    with pytest.raises(ValueError, match="b_max"):
+        rerun_forecast(base, load, settings=RunSettings(workers=1, b_max=1.0))
+    with pytest.raises(ValueError, match="as_of"):
+        rerun_forecast(base, load, settings=RunSettings(workers=1, as_of="2025-01"))
+    with pytest.raises(ValueError, match="econ_limit_bopd"):
+        rerun_wells(base, load, settings=RunSettings(workers=1, econ_limit_bopd=3.0), overrides=None, wells=[])
+    from core.decline import WellOverride
+
+    w = base.wells["well_id"].iloc[0]
+    with pytest.raises(ValueError, match="rerun_wells"):
+        rerun_forecast(base, load, settings=s, overrides={w: WellOverride(b=0.2)})
+
+
+# ------------------------------------------------------------------------------ probabilistic
+def test_probabilistic_columns_when_samples_are_asked(field_files, result):
+    from core.export import FIELD_PERCENTILES_FILE, run_to_xlsx_bytes
+    from core.run import PROB_MONTHLY_COLUMNS, PROB_WELLS_COLUMNS
+
+    s = RunSettings(econ_limit_bopd=2.0, workers=1, samples=40, seed=3)
+    load = load_inputs(field_files["clean"], wells_path=field_files["header"], settings=s)
+    res = run_field(load, settings=s)
+    w = res.wells
+    # the deterministic contract is untouched; the percentile columns follow it
+    assert list(w.columns) == list(result.wells.columns) + PROB_WELLS_COLUMNS
+    pd.testing.assert_frame_equal(w[result.wells.columns], result.wells, check_exact=True)
+    ans = w[w["eur_oil_bbl"].notna()]
+    assert len(ans) > 0
+    # reserves convention (SPE-PRMS 2018): P90 (low) <= P50 <= P10 (high)
+    for q in ("eur_oil_bbl", "remaining_oil_bbl"):
+        assert (ans[f"{q}_p90"] <= ans[f"{q}_p50"] + 1e-9).all() and (ans[f"{q}_p50"] <= ans[f"{q}_p10"] + 1e-9).all()
+    d = ans.dropna(subset=["econ_limit_date_p90", "econ_limit_date_p10"])
+    assert (d["econ_limit_date_p90"] <= d["econ_limit_date_p10"]).all()
+    # EUR percentile = cumulative + remaining percentile (EUR definition, SPE-PRMS 2018 glossary)
+    np.testing.assert_allclose(ans["eur_oil_bbl_p50"], ans["cum_oil_bbl"] + ans["remaining_oil_bbl_p50"], rtol=1e-9)
+    assert w.loc[w["eur_oil_bbl"].isna(), "eur_oil_bbl_p50"].isna().all()  # no answer, no range
+    m = res.monthly
+    assert list(m.columns) == MONTHLY_COLUMNS + PROB_MONTHLY_COLUMNS
+    assert m.loc[m["kind"] == "actual", PROB_MONTHLY_COLUMNS].isna().all().all()
+    fc = m[(m["kind"] == "forecast") & m["oil_bbl_p50"].notna()]
+    assert len(fc) > 0 and (fc["oil_bbl_p90"] <= fc["oil_bbl_p10"] + 1e-9).all()
+    # field totals: sample-wise sums, stated with their method, in the CSV files and workbook
+    f = res.probabilistic.field.set_index("quantity")
+    assert f.loc["eur_oil_bbl", "p90"] <= f.loc["eur_oil_bbl", "p50"] <= f.loc["eur_oil_bbl", "p10"]
+    assert res.summary["eur_oil_bbl_field_p50"] == f.loc["eur_oil_bbl", "p50"]
+    files = tables_to_csv_bytes(res)
+    fp = pd.read_csv(io.BytesIO(files[FIELD_PERCENTILES_FILE]))
+    assert set(fp["quantity"]) == {"remaining_oil_bbl", "eur_oil_bbl"} and fp["method"].str.contains("sum").all()
+    wb = openpyxl.load_workbook(io.BytesIO(run_to_xlsx_bytes(res)), read_only=True)
+    assert "field_percentiles" in wb.sheetnames
+    cover = {r[0]: r[1] for r in wb["cover"].iter_rows(values_only=True) if len(r) >= 2}
+    assert "bootstrap" in cover["probabilistic method"]
+    wb.close()
+    # the same seed gives the same numbers
+    again = run_field(load, settings=s)
+    pd.testing.assert_frame_equal(again.wells, res.wells, check_exact=True)
+
+
+def test_samples_setting_is_checked():
+    with pytest.raises(InputError, match="samples"):
+        RunSettings(samples=5)
+    with pytest.raises(InputError, match="seed"):
+        RunSettings(samples=20, seed=-1)
+    assert RunSettings(samples=20, seed=2, scheduler="local").as_dict()["samples"] == 20
+
+
+@pytest.mark.skipif(not SAMPLE_PROD.exists(), reason="sample field not generated yet")
+def test_command_samples_and_type_wells(tmp_path):
+    out = tmp_path / "o"
+    err = io.StringIO()
+    text = io.StringIO()
+    code = main(["forecast", str(SAMPLE_PROD), "--wells", str(SAMPLE_HEADER), "--out", str(out), "--workers", "1",
+                 "--samples", "20", "--seed", "4", "--type-wells", "--no-xlsx"], stdout=text, stderr=err)
+    assert code == 0, err.getvalue()
+    w = pd.read_csv(out / "wells.csv", keep_default_na=False)
+    for c in ("eur_oil_bbl_p90", "eur_oil_bbl_p50", "eur_oil_bbl_p10", "remaining_oil_bbl_p90",
+              "remaining_oil_bbl_p50", "remaining_oil_bbl_p10", "econ_limit_date_p90", "econ_limit_date_p50",
+              "econ_limit_date_p10"):
+        assert c in w.columns
+    a = w[w["eur_oil_bbl_p50"] != ""]
+    p90, p50, p10 = (a[f"eur_oil_bbl_{k}"].astype(float) for k in ("p90", "p50", "p10"))
+    assert (p90 <= p50 + 1e-6).all() and (p50 <= p10 + 1e-6).all()
+    assert (out / "field_percentiles.csv").exists()
+    tw = pd.read_csv(out / "type_wells.csv")
+    units = pd.read_csv(out / "units.csv").set_index("unit")
+    assert len(tw) > 0 and set(tw["type_well"]) <= set(units.index)
+    # each month's curve is made of at least 5 wells (the documented minimum) of its own unit
+    for u, g in tw.groupby("type_well"):
+        assert g["n_wells"].between(5, units.loc[u, "n_wells"]).all()
+        assert (g["oil_rate_bbl_d_p90"] <= g["oil_rate_bbl_d_p10"] + 1e-9).all()
+    assert "field EUR oil P90 / P50 / P10" in text.getvalue() and "type wells written" in text.getvalue()
+
+
+# ------------------------------------------------------------------------------ monthly cycle with --db
+@pytest.mark.skipif(not SAMPLE_PROD.exists(), reason="sample field not generated yet")
+def test_command_monthly_cycle_appends_carries_overrides_and_reports_changes(tmp_path):
+    from core.storage import open_store
+
+    raw = pd.read_csv(SAMPLE_PROD, dtype=str, keep_default_na=False)
+    sep = tmp_path / "quail_2026-09.csv"
+    raw[raw["Month"] <= "2026-09"].to_csv(sep, index=False)
+    octo = tmp_path / "quail_2026-10.csv"
+    raw[raw["Month"] == "2026-10"].to_csv(octo, index=False)  # the new month only
+    db = tmp_path / "store"
+    base = ["--wells", str(SAMPLE_HEADER), "--workers", "1", "--db", str(db), "--field-name", "Quail", "--no-xlsx"]
+    out1 = io.StringIO()
+    assert main(["forecast", str(sep), "--out", str(tmp_path / "sep"), *base], stdout=out1, stderr=io.StringIO()) == 0
+    assert "overrides carried forward: 0" in out1.getvalue()
+    w1 = pd.read_csv(tmp_path / "sep" / "wells.csv", keep_default_na=False).set_index("well_id")
+    # an engineer forces an exponential decline on a hyperbolic well between the two runs
+    target = w1.index[(w1["model"] != "exponential") & (w1["status"] == STATUS_OK) & (w1["b"].replace("", "0").astype(float) > 0.3)][0]
+    store = open_store(db)
+    store.add_override("Quail", target, "b", 0.0, reason="analogue wells decline exponentially", author="engineer")
+    store.close()
+    out2, err2 = io.StringIO(), io.StringIO()
+    assert main(["forecast", str(octo), "--out", str(tmp_path / "oct"), *base], stdout=out2, stderr=err2) == 0, err2.getvalue()
+    text = out2.getvalue()
+    n_wells_oct = raw.loc[raw["Month"] == "2026-10", "Well"].nunique()
+    assert "overrides carried forward: 1" in text and f"months appended: {n_wells_oct}" in text and "conflicts: 0" in text
+    w2 = pd.read_csv(tmp_path / "oct" / "wells.csv", keep_default_na=False).set_index("well_id")
+    # the run covers the whole held history plus the new month, with the override applied
+    assert (w2["last_month"].replace("", np.nan).dropna() <= "2026-10").all() and (w2["last_month"] == "2026-10").sum() == n_wells_oct
+    assert w2.loc[target, "b"] == 0 or float(w2.loc[target, "b"]) == 0.0
+    assert "b=0" in w2.loc[target, "override"] and (w2.drop(index=target)["override"] == "").all()
+    ch = pd.read_csv(tmp_path / "oct" / "changes.csv", keep_default_na=False).set_index("well_id")
+    assert str(ch.loc[target, "eur_changed"]).lower() == "true"
+    # every flag agrees with the two wells tables: EUR moved by more than 1 % and 1 bbl
+    # (core.changes default tolerance, our documented rule)
+    e1 = w1["eur_oil_bbl"].replace("", np.nan).astype(float)
+    e2 = w2["eur_oil_bbl"].replace("", np.nan).astype(float).reindex(e1.index)
+    moved = ((e2 - e1).abs() > np.maximum(0.01 * e1.abs(), 1.0)) | (e1.isna() != e2.isna())
+    flagged = ch["eur_changed"].astype(str).str.lower() == "true"
+    assert set(moved[moved].index) == set(flagged[flagged].index)
+    # a restated month is a conflict: reported in load_report.csv, the newer file wins
+    restated = raw[raw["Month"] == "2026-10"].copy()
+    restated.loc[restated.index[0], "Oil (bbl)"] = str(int(float(restated.iloc[0]["Oil (bbl)"])) + 100)
+    nov = tmp_path / "quail_restated.csv"
+    restated.to_csv(nov, index=False)
+    out3 = io.StringIO()
+    assert main(["forecast", str(nov), "--out", str(tmp_path / "nov"), *base], stdout=out3, stderr=io.StringIO()) == 0
+    assert "conflicts: 1" in out3.getvalue() and "months appended: 0" in out3.getvalue()
+    rep = pd.read_csv(tmp_path / "nov" / "load_report.csv", keep_default_na=False)
+    conflict = rep[(rep["file"] == "(monthly update)") & (rep["action"] == "altered")]
+    assert len(conflict) == 1 and conflict["well_id"].iloc[0] == restated.iloc[0]["Well"]
