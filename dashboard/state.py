@@ -1470,7 +1470,9 @@ def selected_unit(run) -> str | None:
     names = unit_names(run)
     u = st.session_state.get(UNIT)
     if u not in names:
-        u = names[0] if names else None
+        # by default the first unit with a planning status (a solution-gas-drive oil unit)
+        staged = run.units.loc[run.units["planning_status"] != "not_applicable", "unit"].astype(str)
+        u = staged.iloc[0] if len(staged) else (names[0] if names else None)
         st.session_state[UNIT] = u
     return u
 
@@ -1542,14 +1544,18 @@ def settings_summary() -> str:
     s = st.session_state[SETTINGS]
     limit = s.get("econ_limit_bopd")
     how = f"{limit:g} bbl/d" if limit else ("from prices and costs" if s.get("oil_price") else "default")
-    return f"Economic limit: {how} · b max {s.get('b_max'):g} · terminal decline {terminal_decline_pct():.1f} %/yr"
+    samples = prob_settings()[0]
+    prob = f"P90/P50/P10 {samples} samples" if samples else "P90/P50/P10 off"
+    return (f"Economic limit: {how} · b max {s.get('b_max'):g} · terminal decline {terminal_decline_pct():.1f} %/yr"
+            f" · {prob}")
 
 
 def settings_note() -> str:
     return (
-        "What a change re-runs: the input units re-read the file; every other setting re-runs the "
-        "forecast from the loaded table (the file is not read again). Earlier combinations stay "
-        "cached, so switching back is instant."
+        "What a change re-runs: the input units re-read the file; the economic limit inputs, the "
+        "horizon and the terminal decline re-run the forecast on the kept fits (when core.run offers it); the other settings "
+        "re-run fits and forecast from the loaded table (the file is not read again). The P90/P50/P10 "
+        "are computed again when asked for. Earlier combinations stay cached, so switching back is instant."
     )
 
 

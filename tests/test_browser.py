@@ -192,6 +192,10 @@ def test_upload_overview_well_download_and_screenshots(server, page, tmp_path):
     _shot(page, "well_review")
 
     _open(page, server, "Unit planning")
+    # the unit's material-balance history match is drawn once computed (its own spinner)
+    expect(page.get_by_test_id("stPlotlyChart")).to_have_count(2)
+    expect(page.get_by_text("Oil in place, history match").or_(page.get_by_text("No material-balance history match"))).to_be_visible()
+    _wait_idle(page)
     _shot(page, "unit_planning")
 
     _open(page, server, "Type wells")

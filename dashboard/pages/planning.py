@@ -23,7 +23,7 @@ if names:
     current = state.selected_unit(run)
     unit = st.selectbox("Unit", names, index=names.index(current), key="unit_pick", on_change=state.on_unit_pick)
     row = state.unit_row(run, unit)
-    c = st.columns([1, 2, 2, 2, 1])
+    c = st.columns([1, 3, 2, 2, 1])
     c[0].metric("Stage", state.stage_text(row))
     c[1].metric("Planning status", charts.PLANNING_LABELS.get(row["planning_status"], str(row["planning_status"])))
     c[2].metric("Months since bubble point", state.number_text(row.get("months_since_bubble_point"), "{:.0f}"))
