@@ -79,6 +79,8 @@ def measure(n_wells: int, seed: int, *, material_balance_fit: bool = True) -> di
         "peak_within_3_declared": float((peak_err[passed & m["passed_gor_peak"].astype(bool)] <= 3).mean()),
         "peak_band_within_3": float((band_err[passed] <= 3).mean()),
         "peak_band_width_median": float(band_width[passed].median()),
+        "peak_within_3_by_band_width": (peak_err[passed] <= 3).groupby(
+            pd.cut(band_width[passed], [0, 12, 24, 36, 1200])).mean().round(3).to_dict(),
         "peak_band_width_q": [float(band_width[passed].quantile(q)) for q in (0.1, 0.9)],
         "n_not_passed": int((~passed).sum()),
         "no_false_peak": float((~m.loc[~passed, "passed_gor_peak"].astype(bool)).mean()),
@@ -134,6 +136,8 @@ def main(argv: list[str] | None = None) -> int:
           f"within 1 % of its maximum) {100 * r['peak_band_within_3']:.1f} %; band width median "
           f"{r['peak_band_width_median']:.0f} months (10-90 %: {r['peak_band_width_q'][0]:.0f}-"
           f"{r['peak_band_width_q'][1]:.0f})")
+    print("  peak month within 3 months by band width (months): "
+          + ", ".join(f"{k}: {100 * v:.0f} %" for k, v in r["peak_within_3_by_band_width"].items()))
     print(f"no peak declared before the peak    {100 * r['no_false_peak']:5.1f} %  (target >= 95 %, "
           f"{r['n_not_passed']} wells)")
     print(f"bubble-point month within 3 months  {100 * r['bp_within_3_surveys']:5.1f} %  "
