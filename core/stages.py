@@ -41,7 +41,8 @@ Method (all series are treated alike: a well, or a unit built from summed volume
   the latest half-window is not back above the peak. One more month of data therefore
   cannot move the maximum by itself nor un-declare a peak through one noisy month.
 * Where the well header gives the PVT (API, gas gravity, temperature, bubble point,
-  initial pressure), the GOR history is matched against Tarner material-balance paths and
+  initial pressure), the GOR history and the pressure surveys are matched against Tarner
+  material-balance paths (one recovery factor per well, one Corey set per PVT group) and
   the stage and dates are read from the match (see ``_mb_fit``).
 
 Everything is vectorised over series: the producing months are packed into a
@@ -1372,10 +1373,11 @@ def track_wells(
     as_of : date-like, optional
         Month the status refers to; default the last month in ``production``.
     material_balance_fit : bool, optional
-        Match each well's GOR history against a Tarner material-balance path built from
-        its PVT header (API, gas gravity, temperature, bubble point, initial pressure) and
-        take the stage and dates from it where the match is good (see the module notes).
-        Wells without a complete header use the GOR-only rules either way.
+        Match each well's GOR history and pressure surveys against a Tarner
+        material-balance path built from its PVT header (API, gas gravity, temperature,
+        bubble point, initial pressure; a gap filled with the median of its unit's wells)
+        and take the stage and dates from it where the match is good (see the module
+        notes). Wells whose header cannot be completed use the GOR-only rules either way.
 
     Returns
     -------
