@@ -88,7 +88,7 @@ def build_parser() -> argparse.ArgumentParser:
 
     e = f.add_argument_group("economic limit (give a rate, or prices and costs; default %g bbl/d)" % DEFAULT_ECON_LIMIT_BOPD)
     e.add_argument("--econ-limit-bopd", type=float, metavar="RATE", help=f"economic limit as an oil rate [bbl/d]. Default {DEFAULT_ECON_LIMIT_BOPD:g} when no prices are given")
-    e.add_argument("--econ-limit-mcfd", type=float, metavar="RATE", help="economic limit of wells forecast on gas only (gas and condensate wells) [Mcf/d]. Default: none (the horizon caps them)")
+    e.add_argument("--econ-limit-mcfd", type=float, metavar="RATE", help="economic limit of gas and condensate wells, which are forecast on their gas decline (condensate at the recent condensate-gas ratio) [Mcf/d]. Default: from the prices when given, else 10 (common practice)")
     e.add_argument("--oil-price", type=float, metavar="USD", help="oil price [$/bbl]; with --opex-per-month and --nri it sets the economic limit. Default: none")
     e.add_argument("--gas-price", type=float, metavar="USD", help="gas price [$/Mcf], credited at the well's recent GOR. Default: none (no gas credit)")
     e.add_argument("--opex-per-month", type=float, metavar="USD", help="gross operating cost per well and month [$/month]. Default: none")

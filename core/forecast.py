@@ -103,6 +103,7 @@ def forecast_field(
     settings: DeclineSettings | None = None,
     as_of=None,
     monthly: bool = True,
+    gas_econ_limit_mcfd=None,
 ) -> tuple[pd.DataFrame, pd.DataFrame]:
     """Forecast every well's monthly oil and gas to the economic limit or the horizon.
 
@@ -122,6 +123,9 @@ def forecast_field(
     monthly : bool
         False skips the monthly table (returned empty); the summary is the same (remaining
         volumes come from the closed-form cumulative either way).
+    gas_econ_limit_mcfd : mapping or Series of well_id to float, optional
+        Per-well economic limit of the wells forecast on gas (no oil forecast), replacing
+        ``settings.econ_limit_mcfd`` for the wells it names. [Mcf/d]
 
     Returns
     -------
@@ -138,10 +142,10 @@ def forecast_field(
     monthly integrals, end of forecast).
     """
     with np.errstate(over="ignore", under="ignore"):  # extreme inputs: results checked finite below
-        return _forecast(fits, production, settings, as_of, monthly)
+        return _forecast(fits, production, settings, as_of, monthly, gas_econ_limit_mcfd)
 
 
-def _forecast(fits, production, settings, as_of, monthly):
+def _forecast(fits, production, settings, as_of, monthly, gas_limit=None):
     if isinstance(fits, FieldFit):
         st = settings or fits.settings
         fit_table = fits.fits
@@ -198,6 +202,11 @@ def _forecast(fits, production, settings, as_of, monthly):
     else:
         q_el = np.zeros(n_w)
     q_el_gas = np.full(n_w, float(st.econ_limit_mcfd or 0.0))
+    if gas_limit is not None:
+        given = pd.to_numeric(pd.Series(gas_limit, dtype=float), errors="coerce").reindex(wells).to_numpy(float)
+        if (np.isfinite(given) & (given < 0)).any():
+            raise InputError("gas_econ_limit_mcfd must be 0 or more Mcf/d")
+        q_el_gas = np.where(np.isfinite(given), given, q_el_gas)
     d_lim = st.d_lim_nominal
     # ---- stream parameters
     fo, ok_o, qi_o, di_o, b_o, fs_o = _stream_params(fit_table, wells, "oil")

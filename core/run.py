@@ -196,8 +196,9 @@ class RunSettings:
         Economic limit as an oil rate. [bbl/d] Give this *or* the economic inputs below;
         with neither, :data:`DEFAULT_ECON_LIMIT_BOPD` is used.
     econ_limit_mcfd : float, optional
-        Economic limit of a well forecast on gas only (a gas or condensate well). [Mcf/d]
-        Default none: the horizon caps such forecasts.
+        Economic limit of gas and condensate wells, which are forecast on their gas decline
+        (:func:`gas_limits_mcfd`). [Mcf/d] Default: from the prices when given, else
+        :data:`DEFAULT_ECON_LIMIT_MCFD`.
     oil_price : float, optional
         Oil price. [$/bbl]
     gas_price : float, optional
@@ -614,7 +615,7 @@ def run_field(
         prog(0.9, f"probabilistic forecasts ({settings.samples} samples per well)")
         t = time.perf_counter()
         wells, monthly, prob, pnotes = _add_probabilistic(wells, monthly, prod, ff.fits, settings, dsettings, as_of,
-                                                          overrides, regime)
+                                                          overrides, regime, fluids)
         notes += pnotes
         timings["probabilistic"] = time.perf_counter() - t
     return _finish(
@@ -625,7 +626,7 @@ def run_field(
 
 def _add_probabilistic(wells: pd.DataFrame, monthly: pd.DataFrame, prod: pd.DataFrame, fits: pd.DataFrame,
                        settings: RunSettings, dsettings: Any, as_of: pd.Timestamp,
-                       overrides: Mapping[str, Any] | None, regime: Any):
+                       overrides: Mapping[str, Any] | None, regime: Any, fluids: pd.DataFrame | None = None):
     """P90/P50/P10 forecasts (:func:`core.probabilistic.probabilistic_field`) merged into the
     wells and monthly tables; returns (wells, monthly, ProbabilisticResult, notes).
 
@@ -636,14 +637,37 @@ def _add_probabilistic(wells: pd.DataFrame, monthly: pd.DataFrame, prod: pd.Data
     """
     from core.probabilistic import probabilistic_field
 
+    # gas and condensate wells run on their gas decline (deterministic here): they leave the
+    # bootstrap of oil declines and join the field totals at their deterministic volumes
+    gw = _gas_wells(fits, fluids)
+    gas_rows = prod["well_id"].astype(str).isin(set(gw))
     pr = probabilistic_field(
-        prod, fits, settings=dsettings, samples=int(settings.samples), seed=int(settings.seed),
+        prod[~gas_rows] if len(gw) else prod, fits[~fits["well_id"].astype(str).isin(set(gw))] if len(gw) else fits,
+        settings=dsettings, samples=int(settings.samples), seed=int(settings.seed),
         scheduler=settings.scheduler, as_of=as_of, overrides=dict(overrides) if overrides else None,
         regime_start=regime,
     )
     pw = pr.wells.assign(well_id=pr.wells["well_id"].astype(str)).set_index("well_id").reindex(
         wells["well_id"].astype(str))
     answered = wells["eur_oil_bbl"].notna().to_numpy()
+    is_gas = wells["well_id"].astype(str).isin(set(gw)).to_numpy()
+    if is_gas.any():
+        wg = wells.assign(well_id=wells["well_id"].astype(str)).set_index("well_id")
+        g_ids = wg.index[is_gas]
+        for lab in ("p90", "p50", "p10"):
+            pw.loc[g_ids, f"eur_oil_bbl_{lab}"] = wg.loc[g_ids, "eur_oil_bbl"].to_numpy(float)
+            pw.loc[g_ids, f"remaining_oil_bbl_{lab}"] = wg.loc[g_ids, "remaining_oil_bbl"].to_numpy(float)
+            pw.loc[g_ids, f"econ_limit_date_{lab}"] = wg.loc[g_ids, "econ_limit_date"].to_numpy()
+        pw.loc[g_ids, "prob_method"] = "deterministic (gas well forecast on its gas decline)"
+        field_t = pr.field.copy()
+        for q in ("remaining_oil_bbl", "eur_oil_bbl"):
+            add = float(np.nansum(wg.loc[g_ids, q].to_numpy(float)))
+            sel = field_t["quantity"] == q
+            for c in ("p90", "p50", "p10", "mean"):
+                field_t.loc[sel, c] = field_t.loc[sel, c] + add  # a constant in every sample
+            field_t.loc[sel, "n_wells"] = field_t.loc[sel, "n_wells"] + len(g_ids)
+        field_t["method"] = field_t["method"] + "; gas wells added at their deterministic volumes"
+        pr = dataclasses.replace(pr, field=field_t)
     out = wells.copy()
     for c in PROB_WELLS_COLUMNS:
         v = pw[c] if c in pw.columns else pd.Series(np.nan, index=pw.index)
@@ -668,9 +692,11 @@ def _add_probabilistic(wells: pd.DataFrame, monthly: pd.DataFrame, prod: pd.Data
     is_fc = (m["kind"] == "forecast").to_numpy()
     hit = at >= 0
     hit[hit] &= is_fc[at[hit]]
+    gas_fc = is_fc & m["well_id"].astype(str).isin(set(gw)).to_numpy() if len(gw) else np.zeros(len(m), bool)
     for c in PROB_MONTHLY_COLUMNS:
         arr = np.full(len(m), np.nan)
         arr[at[hit]] = pm[c].to_numpy(dtype=float)[hit]
+        arr[gas_fc] = m["oil_bbl"].to_numpy(dtype=float)[gas_fc]  # deterministic: no spread
         m[c] = arr
     notes = [f"probabilistic forecasts: {int(settings.samples)} samples per well, seed {int(settings.seed)}; "
              f"field totals by {pr.field['method'].iloc[0] if len(pr.field) else 'sample-wise sums'}"]
@@ -689,13 +715,134 @@ def _regime(stages: pd.DataFrame) -> pd.Series | None:
     return stages.set_index("well_id")["regime_start"] if "regime_start" in stages.columns else None
 
 
+#: Fluid types forecast on their gas decline (McCain's classification: gases and condensates).
+GAS_FLUID_TYPES = ("gas_condensate", "wet_gas", "dry_gas")
+
+#: Default economic limit of a gas well when neither a gas rate limit nor prices are given
+#: [Mcf/d] (common practice: small gas wells are plugged at a few to a few tens of Mcf/d).
+DEFAULT_ECON_LIMIT_MCFD = 10.0
+
+#: Producing months whose condensate-gas ratio the condensate forecast follows (as the
+#: decline engine's recent GOR and uptime window).
+CGR_MONTHS = 12
+
+
+def _gas_wells(fits: pd.DataFrame, fluids: pd.DataFrame) -> pd.Index:
+    """Gas and condensate wells (fluid typing) with a forecastable gas decline fit."""
+    if fluids is None or fluids.empty or "fluid_type" not in fluids.columns:
+        return pd.Index([], dtype=object)
+    gas_type = set(fluids.loc[fluids["fluid_type"].isin(GAS_FLUID_TYPES), "well_id"].astype(str))
+    if not gas_type:
+        return pd.Index([], dtype=object)
+    g = fits[fits["stream"].astype(str) == "gas"]
+    ok = (g["forecastable"].fillna(False).astype(bool) & np.isfinite(pd.to_numeric(g["qi"], errors="coerce"))
+          & np.isfinite(pd.to_numeric(g["di"], errors="coerce")) & g["fit_start"].notna())
+    ids = g.loc[ok, "well_id"].astype(str)
+    return pd.Index(sorted(set(ids) & gas_type))
+
+
+def recent_cgr(prod: pd.DataFrame, *, months: int = CGR_MONTHS) -> pd.Series:
+    """Condensate-gas ratio per well over its last ``months`` producing months [bbl/Mcf]:
+    sum of oil (condensate) over sum of gas, months with gas > 0 and days on > 0."""
+    gas = pd.to_numeric(prod["gas_mcf"], errors="coerce") if "gas_mcf" in prod else pd.Series(np.nan, index=prod.index)
+    oil = pd.to_numeric(prod["oil_bbl"], errors="coerce").fillna(0.0).clip(lower=0.0)
+    don = pd.to_numeric(prod["days_on"], errors="coerce").fillna(0.0) if "days_on" in prod else pd.Series(1.0, index=prod.index)
+    use = (gas > 0) & (don > 0)
+    sub = pd.DataFrame({"well_id": prod["well_id"].astype(str), "month": prod["month"], "oil": oil, "gas": gas})[use]
+    sub = sub.sort_values(["well_id", "month"], kind="stable").groupby("well_id", sort=True).tail(months)
+    g = sub.groupby("well_id", sort=True)
+    return g["oil"].sum() / g["gas"].sum()
+
+
+def gas_limits_mcfd(dsettings: Any, cgr: pd.Series) -> tuple[pd.Series, str]:
+    """Economic limit of gas wells [Mcf/d] and where it comes from.
+
+    ``econ_limit_mcfd`` when given; else, with price inputs, the standard economic-limit
+    form (``core.economics``) with the revenue per Mcf = gas price x shrink + CGR x oil price,
+    i.e. q_gas = WI OPEX / ((P_gas shrink + CGR P_oil) NRI (1 - tax)) / 30.4375 d; else
+    :data:`DEFAULT_ECON_LIMIT_MCFD` (common practice)."""
+    if dsettings.econ_limit_mcfd is not None:
+        return pd.Series(float(dsettings.econ_limit_mcfd), index=cgr.index), "given"
+    econ = dsettings.economics
+    if econ is not None:
+        from core.economics import economic_limit_from_inputs
+
+        q_oil0 = float(np.asarray(economic_limit_from_inputs(econ, gor_scf_stb=0.0)).ravel()[0])  # bbl/d, no gas credit
+        p_oil = float(econ.oil_price_per_bbl)
+        rev = float(econ.gas_price_per_mcf) * float(getattr(econ, "gas_shrink", 1.0)) + cgr.fillna(0.0) * p_oil
+        q = pd.Series(np.where(rev > 0, q_oil0 * p_oil / np.where(rev > 0, rev, 1.0), DEFAULT_ECON_LIMIT_MCFD),
+                      index=cgr.index)
+        return q, "from prices and costs"
+    return pd.Series(DEFAULT_ECON_LIMIT_MCFD, index=cgr.index), "default, common practice"
+
+
 def _forecast(fits: pd.DataFrame, prod: pd.DataFrame, fluids: pd.DataFrame, dsettings: Any,
               as_of: pd.Timestamp) -> tuple[pd.DataFrame, pd.DataFrame]:
     """The forecast of every well of ``prod`` from its fits (per well: results of a well do
-    not depend on the other wells in the table, which the incremental re-runs rely on)."""
+    not depend on the other wells in the table, which the incremental re-runs rely on).
+
+    Oil wells run on their oil decline to the oil economic limit (``core.forecast``). Gas and
+    condensate wells (:data:`GAS_FLUID_TYPES`) with a gas decline fit run on their gas decline
+    to a gas economic limit (:func:`gas_limits_mcfd`); their condensate follows the gas at the
+    recent condensate-gas ratio (:func:`recent_cgr`), and ``status`` says so. (On its own
+    condensate decline such a well often never reaches the oil limit and runs to the horizon
+    cap, which inflates the field forecast.)
+    """
     from core.forecast import forecast_field
 
-    return forecast_field(fits, prod, settings=dsettings, as_of=as_of)
+    fsum, fmon = forecast_field(fits, prod, settings=dsettings, as_of=as_of)
+    gw = _gas_wells(fits, fluids)
+    if gw.empty:
+        return fsum, fmon
+    gw_list = list(gw)
+    sub = prod[prod["well_id"].astype(str).isin(gw_list)]
+    cgr = recent_cgr(sub).reindex(gw).fillna(0.0)
+    lim, source = gas_limits_mcfd(dsettings, cgr)
+    gf = fits[fits["well_id"].astype(str).isin(gw_list)].copy()
+    is_oil = (gf["stream"].astype(str) == "oil").to_numpy()
+    fa = gf["forecastable"].to_numpy(dtype=bool, copy=True)
+    fa[is_oil] = False  # drive by the gas decline
+    gf["forecastable"] = fa
+    gs, gm = forecast_field(gf, sub, settings=dsettings, as_of=as_of, gas_econ_limit_mcfd=lim)
+    ids = gs["well_id"].astype(str)
+    c = cgr.reindex(ids).to_numpy(float)
+    rem_gas = gs["remaining_gas_mcf"].to_numpy(float)
+    gs["remaining_oil_bbl"] = rem_gas * c
+    gs["eur_oil_bbl"] = gs["cum_oil_bbl"].to_numpy(float) + gs["remaining_oil_bbl"].to_numpy(float)
+    gs["econ_limit_bopd"] = np.nan
+    ftype = fluids.assign(well_id=fluids["well_id"].astype(str)).drop_duplicates("well_id").set_index("well_id")["fluid_type"]
+    note = pd.Series(
+        [f"gas well ({ftype.get(w, 'gas')}): forecast on its gas decline to {lim[w]:.3g} Mcf/d ({source}); "
+         f"condensate at the recent condensate-gas ratio {1000.0 * cgr[w]:.1f} bbl/MMcf" for w in ids],
+        index=gs.index,
+    )
+    below = gs["forecast_end_reason"].astype(str) == "below_limit_at_start"
+    gs["status"] = note.where(~below, note + "; below the economic limit at the start of the forecast")
+    gs["gas_method"] = "own decline (condensate at the recent CGR)"
+    if len(gm):
+        wid = gm["well_id"].astype(str)
+        cg = cgr.reindex(wid).to_numpy(float)
+        oil = gm["gas_mcf"].to_numpy(float) * cg
+        days = pd.to_datetime(gm["month"]).dt.days_in_month.to_numpy(float)
+        hist = gs.set_index(ids)["cum_oil_bbl"].reindex(wid).to_numpy(float)
+        gm = gm.assign(oil_bbl=oil, oil_rate_bopd=oil / days,
+                       cum_oil_bbl=hist + pd.Series(oil, index=gm.index).groupby(wid.to_numpy(), sort=False).cumsum().to_numpy())
+    keep = ~fsum["well_id"].astype(str).isin(gw_list)
+    pos = pd.Index(fsum["well_id"].astype(str))
+    out = fsum.copy()
+    at = pos.get_indexer(ids)
+    for col in gs.columns:
+        vals = out[col].to_numpy(copy=True) if out[col].dtype != object else out[col].to_numpy(dtype=object, copy=True)
+        try:
+            vals[at] = gs[col].to_numpy(dtype=vals.dtype)
+        except (TypeError, ValueError):
+            vals = vals.astype(object)
+            vals[at] = gs[col].to_numpy(dtype=object)
+        out[col] = vals
+    del keep
+    fm_keep = fmon[~fmon["well_id"].astype(str).isin(gw_list)]
+    fmon2 = pd.concat([fm_keep, gm], ignore_index=True) if len(gm) else fm_keep
+    return out, fmon2
 
 
 def _finish(load, settings, overrides, prod_all, prod, as_of, report, wells, monthly, units_stage, stages,
@@ -1431,7 +1578,7 @@ def rerun_wells(
         # moves every well's samples: the probabilistic part is recomputed for the whole field
         t = time.perf_counter()
         wells_t, monthly, prob, pnotes = _add_probabilistic(wells_t, monthly, prod, fits, settings, dsettings, as_of,
-                                                            overrides, _regime(previous.stages))
+                                                            overrides, _regime(previous.stages), previous.fluids)
         notes += pnotes
         timings["probabilistic"] = time.perf_counter() - t
     res = _finish(
@@ -1510,7 +1657,7 @@ def rerun_forecast(
     if settings.samples:
         t = time.perf_counter()
         wells, monthly, prob, pnotes = _add_probabilistic(wells, monthly, prod, fits, settings, dsettings, as_of,
-                                                          overrides, _regime(previous.stages))
+                                                          overrides, _regime(previous.stages), previous.fluids)
         notes += pnotes
         timings["probabilistic"] = time.perf_counter() - t
     return _finish(

@@ -606,3 +606,55 @@ def test_command_monthly_cycle_appends_carries_overrides_and_reports_changes(tmp
     rep = pd.read_csv(tmp_path / "nov" / "load_report.csv", keep_default_na=False)
     conflict = rep[(rep["file"] == "(monthly update)") & (rep["action"] == "altered")]
     assert len(conflict) == 1 and conflict["well_id"].iloc[0] == restated.iloc[0]["Well"]
+
+
+# ------------------------------------------------------------------------------ gas and condensate wells
+def _recent_cgr_by_hand(prod, well):
+    """Condensate-gas ratio over the last 12 producing months, straight from the loaded table."""
+    p = prod[(prod["well_id"] == well) & (prod["gas_mcf"] > 0) & (prod["days_on"] > 0)].sort_values("month").tail(12)
+    return p["oil_bbl"].sum() / p["gas_mcf"].sum()
+
+
+def test_gas_wells_run_on_their_gas_decline(sample_base):
+    from core.run import GAS_FLUID_TYPES
+
+    load, s, base = sample_base
+    w = base.wells.set_index("well_id")
+    gas = w.index[w["fluid_type"].isin(GAS_FLUID_TYPES) & (w["status"] == STATUS_OK)]
+    assert len(gas) >= 2  # the sample field's Deep Sand wells
+    prod = load.production
+    for wid in gas:
+        assert "forecast on its gas decline to 10 Mcf/d (default, common practice)" in w.loc[wid, "forecast_note"]
+        assert np.isfinite(w.loc[wid, "eur_oil_bbl"])
+        # condensate follows gas at the recent condensate-gas ratio in every forecast month
+        fc = base.monthly[(base.monthly["well_id"] == wid) & (base.monthly["kind"] == "forecast")]
+        np.testing.assert_allclose(fc["oil_bbl"], fc["gas_mcf"] * _recent_cgr_by_hand(prod, wid), rtol=1e-9)
+        np.testing.assert_allclose(fc["oil_bbl"].sum(), w.loc[wid, "remaining_oil_bbl"], rtol=1e-6)
+    # a gas limit the wells reach: every one ends at its limit, before the horizon cap
+    s2 = RunSettings(workers=1, econ_limit_mcfd=150.0)
+    r2 = run_field(load, settings=s2)
+    w2 = r2.wells.set_index("well_id")
+    horizon_end = base.as_of + pd.DateOffset(years=50)
+    for wid in gas:
+        assert w2.loc[wid, "forecast_end_reason"] == "economic_limit", w2.loc[wid, "forecast_note"]
+        assert w2.loc[wid, "econ_limit_date"] < horizon_end
+        assert w2.loc[wid, "eur_oil_bbl"] < w.loc[wid, "eur_oil_bbl"]
+        assert "150 Mcf/d (given)" in w2.loc[wid, "forecast_note"]
+    # the oil wells do not move (their forecast runs on oil)
+    oil = w.index.difference(gas)
+    pd.testing.assert_series_equal(w2.loc[oil, "eur_oil_bbl"], w.loc[oil, "eur_oil_bbl"])
+
+
+def test_gas_limit_from_prices_follows_the_standard_formula(sample_base):
+    from core.run import GAS_FLUID_TYPES
+
+    load, _, base = sample_base
+    s = RunSettings(workers=1, oil_price=70.0, gas_price=3.0, opex_per_month=9000.0, nri=0.8, severance_tax=0.05)
+    w = run_field(load, settings=s).wells.set_index("well_id")
+    gas = w.index[w["fluid_type"].isin(GAS_FLUID_TYPES) & (w["status"] == STATUS_OK)]
+    for wid in gas:
+        cgr = _recent_cgr_by_hand(load.production, wid)
+        # standard reserves-practice economic limit (common practice, as core/economics.py), with
+        # the revenue per Mcf = gas price + CGR x oil price: q = WI*OPEX/(rev*NRI*(1-tax))/30.4375 d
+        q = 1.0 * 9000.0 / ((3.0 + cgr * 70.0) * 0.8 * 0.95) / 30.4375
+        assert f"to {q:.3g} Mcf/d (from prices and costs)" in w.loc[wid, "forecast_note"]
