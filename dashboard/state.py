@@ -468,6 +468,39 @@ def clear_override(well_id: str, reason: str = "", author: str = "") -> None:
     _record_override(entry, None, well_id)
 
 
+OVERRIDE_PROBLEM = "dd_override_problem"  # message of a refused override, shown once by the page
+_MODELS = ("exponential", "hyperbolic", "harmonic")
+
+
+def on_override_submit(well_id: str) -> None:
+    """Callback of the override form: build the override from the form's widgets and apply it
+    (or keep core's / our message for the page). Runs before the page script, so the page
+    is drawn once, with the new forecast."""
+    ss = st.session_state
+
+    def val(key: str, default: Any = None) -> Any:
+        v = ss.get(key, default)
+        return None if v == "automatic" else v
+
+    try:
+        new = make_override(
+            model=val("ov_model") if val("ov_model") in _MODELS else None,
+            b=ss.get("ov_b") if ss.get("ov_fix_b") else None,
+            fit_start=val("ov_start"), fit_end=val("ov_end"), exclude_months=ss.get("ov_exclude") or (),
+            reason=ss.get("ov_reason", ""), author=ss.get("ov_author", ""),
+        )
+    except InputError as exc:
+        ss[OVERRIDE_PROBLEM] = str(exc)
+        return
+    apply_override(well_id, new)
+
+
+def on_override_remove(well_id: str) -> None:
+    """Callback of the remove button: the removal is recorded, the trail kept."""
+    clear_override(well_id, reason="override removed on the Well review page",
+                   author=st.session_state.get("ov_author", ""))
+
+
 def override_for(well_id: str):
     return st.session_state[OVERRIDES].get(well_id)
 

@@ -4,7 +4,6 @@ stages, and the engineer's override."""
 import pandas as pd
 import streamlit as st
 
-from core.validation import InputError
 from dashboard import charts, state
 
 st.title("Well review")
@@ -97,41 +96,29 @@ ov = state.override_for(well)
 with st.form("override_form"):
     a, b_col, d, e = st.columns(4)
     models = ["automatic", "exponential", "hyperbolic", "harmonic"]
-    model = a.selectbox("Model", models, index=models.index(ov.model) if ov and ov.model in models else 0, key="ov_model")
-    fix_b = b_col.checkbox("Fix b", value=bool(ov and ov.b is not None), key="ov_fix_b")
-    b_value = b_col.number_input(
+    a.selectbox("Model", models, index=models.index(ov.model) if ov and ov.model in models else 0, key="ov_model")
+    b_col.checkbox("Fix b", value=bool(ov and ov.b is not None), key="ov_fix_b")
+    b_col.number_input(
         "b", min_value=0.0, max_value=float(state.settings()["b_max"]), step=0.05,
         value=float(ov.b) if ov and ov.b is not None else min(0.5, float(state.settings()["b_max"])), key="ov_b",
     )
-    start = d.selectbox("Fit window start", ["automatic"] + months,
+    d.selectbox("Fit window start", ["automatic"] + months,
                         index=state.month_index(months, ov.fit_start if ov else None), key="ov_start")
-    end = e.selectbox("Fit window end", ["automatic"] + months,
+    e.selectbox("Fit window end", ["automatic"] + months,
                       index=state.month_index(months, ov.fit_end if ov else None), key="ov_end")
-    exclude = st.multiselect("Months to exclude from the fit", months,
+    st.multiselect("Months to exclude from the fit", months,
                              default=[m for m in state.months_text(ov.exclude_months if ov else ()) if m in months],
                              key="ov_exclude")
-    reason = st.text_input("Reason (required)", value=ov.reason if ov else "", key="ov_reason")
-    author = st.text_input("Your name", value=ov.author if ov else "", key="ov_author")
-    submitted = st.form_submit_button("Apply override", type="primary")
-if submitted:
-    try:
-        new = state.make_override(
-            model=None if model == "automatic" else model,
-            b=b_value if fix_b else None,
-            fit_start=None if start == "automatic" else start,
-            fit_end=None if end == "automatic" else end,
-            exclude_months=exclude,
-            reason=reason,
-            author=author,
-        )
-    except InputError as exc:
-        st.error(str(exc))
-    else:
-        state.apply_override(well, new)
-        st.rerun()
-if ov is not None and st.button("Remove this well's override", key="ov_remove"):
-    state.clear_override(well, reason="override removed on the Well review page", author=author)
-    st.rerun()
+    st.text_input("Reason (required)", value=ov.reason if ov else "", key="ov_reason")
+    st.text_input("Your name", value=ov.author if ov else "", key="ov_author")
+    # Callbacks apply the override before the page runs again, so the page is drawn once,
+    # with the new forecast (no second run of the script).
+    st.form_submit_button("Apply override", type="primary", on_click=state.on_override_submit, args=(well,))
+problem = st.session_state.pop(state.OVERRIDE_PROBLEM, None)
+if problem:
+    st.error(problem)
+if ov is not None:
+    st.button("Remove this well's override", key="ov_remove", on_click=state.on_override_remove, args=(well,))
 
 log = state.override_log(well)
 if not log.empty:
