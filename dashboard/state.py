@@ -1149,8 +1149,21 @@ def _well_slice(frame: pd.DataFrame, key: str, well_id: str) -> pd.DataFrame:
     index = cache.get(key)
     if index is None:
         ids = frame["well_id"]
-        index = {str(k): v for k, v in ids.groupby(ids, sort=False, observed=True).indices.items()}
+        codes = ids.cat.codes.to_numpy() if isinstance(ids.dtype, pd.CategoricalDtype) else None
+        if codes is not None and (len(codes) < 2 or bool((codes[1:] >= codes[:-1]).all())):
+            # rows grouped by well in category order (core's monthly table): a binary search
+            # per lookup, nothing to build for a new run
+            index = ("sorted", codes, {str(c): i for i, c in enumerate(ids.cat.categories)})
+        else:
+            index = {str(k): v for k, v in ids.groupby(ids, sort=False, observed=True).indices.items()}
         cache.put(key, index)
+    if isinstance(index, tuple):
+        _, codes, cats = index
+        code = cats.get(str(well_id))
+        if code is None:
+            return frame.iloc[0:0]
+        lo, hi = codes.searchsorted(code, "left"), codes.searchsorted(code, "right")
+        return frame.iloc[lo:hi]
     pos = index.get(str(well_id))
     return frame.iloc[pos] if pos is not None else frame.iloc[0:0]
 
