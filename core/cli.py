@@ -516,6 +516,10 @@ def record_run(db: str, result: Any, load: Any, *, field_name: str | None, out_d
     """Record ``result`` (and its dataset) in the store at ``db``; write ``changes.csv`` in
     ``out_dir`` when the store already held a run of the same field.
 
+    The command itself uses :func:`open_update` (which also appends the new months to the
+    held history and carries the overrides forward); this plain recorder is kept for callers
+    that made their run elsewhere.
+
     Returns the path of ``changes.csv`` or None. Store problems (locked, newer schema, not a
     store) raise :class:`core.validation.InputError` with the store's message.
     """

@@ -322,7 +322,9 @@ def tables_to_csv_bytes(result: Any, *, wells: Iterable[str] | None = None) -> d
     Returns
     -------
     dict
-        ``{"wells.csv": b"...", "forecast_monthly.csv": ..., "units.csv": ..., "load_report.csv": ...}``
+        ``{"wells.csv": b"...", "forecast_monthly.csv": ..., "units.csv": ..., "load_report.csv": ...}``,
+        plus ``"field_percentiles.csv"`` for the whole field when the run has probabilistic
+        forecasts (field totals are not split by well).
     """
     tables = _result_tables(result, wells)
     return {_file_name(k): table_to_csv_bytes(v) for k, v in tables.items()}
@@ -764,7 +766,8 @@ def write_outputs(
     """Write every output file of a run into ``out_dir`` (created when missing).
 
     Returns ``{file name: path}``: ``wells.csv``, ``forecast_monthly.csv``, ``units.csv``,
-    ``load_report.csv`` and ``forecast.xlsx``.
+    ``load_report.csv``, ``field_percentiles.csv`` (when the run has probabilistic forecasts)
+    and ``forecast.xlsx``.
     """
     out = Path(out_dir)
     out.mkdir(parents=True, exist_ok=True)

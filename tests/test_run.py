@@ -658,3 +658,19 @@ def test_gas_limit_from_prices_follows_the_standard_formula(sample_base):
         # the revenue per Mcf = gas price + CGR x oil price: q = WI*OPEX/(rev*NRI*(1-tax))/30.4375 d
         q = 1.0 * 9000.0 / ((3.0 + cgr * 70.0) * 0.8 * 0.95) / 30.4375
         assert f"to {q:.3g} Mcf/d (from prices and costs)" in w.loc[wid, "forecast_note"]
+
+
+def test_reruns_with_probabilistic_forecasts_equal_the_full_run(field_files):
+    from core.decline import WellOverride
+    from core.run import rerun_forecast, rerun_wells
+
+    s = RunSettings(econ_limit_bopd=2.0, workers=1, samples=20, seed=5)
+    load = load_inputs(field_files["clean"], wells_path=field_files["header"], settings=s)
+    base = run_field(load, settings=s)
+    ov = {"SYN-001": WellOverride(b=0.5, reason="test", author="t")}
+    inc = rerun_wells(base, load, settings=s, overrides=ov, wells=["SYN-001"])
+    full = run_field(load, settings=s, overrides=ov)
+    _assert_same_run(inc, full)
+    pd.testing.assert_frame_equal(inc.probabilistic.field, full.probabilistic.field, check_exact=True)
+    s2 = RunSettings(econ_limit_bopd=3.0, workers=1, samples=20, seed=6)
+    _assert_same_run(rerun_forecast(full, load, settings=s2, overrides=ov), run_field(load, settings=s2, overrides=ov))
