@@ -888,49 +888,93 @@ def _probs() -> _LRU:
 
 def cached_probabilistic(run):
     """The P90/P50/P10 result of the current run when computed (never computes), else None."""
+    hit = _prob_entry(run)
+    return None if hit is None else hit[1]
+
+
+def prob_run(run):
+    """The run with the P90/P50/P10 columns (core's run with ``samples`` set) when computed,
+    else None: what the Downloads page exports once the percentiles are computed."""
+    hit = _prob_entry(run)
+    return None if hit is None else hit[0]
+
+
+def _prob_entry(run):
     key = prob_key()
     if key is None:
         return None
-    own = getattr(run, "probabilistic", None)  # a run that carries its own (core may add it)
+    own = getattr(run, "probabilistic", None)  # a run that carries its own
     if own is not None and getattr(own, "samples", None) == prob_settings()[0]:
-        return own
+        return run, _prob_view(run)
     return _probs().get(key)
 
 
+def _prob_view(prun):
+    """``prun.probabilistic`` with its per-well table taken from the run's wells table (every
+    well, gas wells at their deterministic volumes, as core's run reports them)."""
+    from core.run import PROB_WELLS_COLUMNS
+
+    cols = ["well_id"] + [c for c in PROB_WELLS_COLUMNS if c in prun.wells.columns]
+    return dataclasses.replace(prun.probabilistic, wells=prun.wells[cols].reset_index(drop=True))
+
+
+def _core_runs_probabilistic() -> bool:
+    import core.run as core_run
+
+    return "samples" in {f.name for f in dataclasses.fields(core_run.RunSettings)}
+
+
 def compute_probabilistic(run, progress: Callable[[float, str], None] | None = None):
-    """``core.probabilistic.probabilistic_field`` for the current run, cached on the run key,
-    the samples and the seed.
+    """The P90/P50/P10 of the current run, cached on the run key, the samples and the seed.
 
-    Same inputs as the run: the loader's table cut at the run's as-of month, the run's fit
-    table, the decline settings the run used (``core.run.decline_settings``), its overrides
-    and the stage tracker's regime starts. The level error is measured first by
-    ``core.probabilistic.calibrate_level_error`` (what ``level_error="auto"`` does inside
-    ``probabilistic_field``; called apart only to report progress).
+    When ``core.run`` takes ``samples`` (its run wires ``core.probabilistic`` in, as the batch
+    command does), the run is re-forecast with them by ``core.run.rerun_forecast`` (the fits
+    kept; a full ``run_field`` if core refuses the step), so the dashboard's percentiles and
+    downloads equal the batch command's. Otherwise ``core.probabilistic.probabilistic_field``
+    is called on the run's inputs (history to the as-of month, the run's fits, the decline
+    settings ``core.run.decline_settings`` makes, the overrides, the regime starts; level
+    error measured first by ``calibrate_level_error``, as ``level_error="auto"`` does).
     """
-    from core.probabilistic import calibrate_level_error, probabilistic_field
-    from core.run import decline_settings
-
     key = prob_key()
     if key is None:
         return None
-    hit = cached_probabilistic(run)
+    hit = _prob_entry(run)
     if hit is not None:
-        return hit
+        return hit[1]
     samples, seed = prob_settings()
     prog = progress or (lambda f, m: None)
-    prod = current_load().production
+    load = current_load()
+    overrides = dict(st.session_state[OVERRIDES]) or None
+    if _core_runs_probabilistic():
+        import core.run as core_run
+
+        new = dataclasses.replace(run.settings, samples=samples, seed=seed)
+        prog(0.05, f"bootstrapping {len(run.wells):,} wells x {samples} samples (with the level error's hindcast)")
+        try:
+            if not hasattr(core_run, "rerun_forecast"):
+                raise ValueError("no forecast re-run in core")
+            prun = core_run.rerun_forecast(run, load, settings=new, overrides=overrides)
+        except ValueError:
+            prun = core_run.run_field(load, settings=new, overrides=overrides, progress=progress)
+        prog(1.0, "P90/P50/P10 computed")
+        entry = (prun, _prob_view(prun))
+        _probs().put(key, entry)
+        return entry[1]
+    from core.probabilistic import calibrate_level_error, probabilistic_field
+    from core.run import decline_settings
+
+    prod = load.production
     if run.as_of is not None:
         prod = prod[prod["month"] <= pd.Timestamp(run.as_of)]
     dsettings = decline_settings(run.settings)
     regime = run.stages.set_index("well_id")["regime_start"] if "regime_start" in run.stages else None
-    overrides = dict(st.session_state[OVERRIDES]) or None
     prog(0.05, "measuring the level error by a hindcast of the last 24 months")
     cal = calibrate_level_error(prod, settings=dsettings, seed=seed, regime_start=regime, overrides=overrides)
     prog(0.45, f"bootstrapping {len(run.wells):,} wells x {samples} samples")
     res = probabilistic_field(prod, run.fits, settings=dsettings, samples=samples, seed=seed, as_of=run.as_of,
                               overrides=overrides, level_error=cal, regime_start=regime)
     prog(1.0, "P90/P50/P10 computed")
-    _probs().put(key, res)
+    _probs().put(key, (None, res))
     return res
 
 
@@ -1321,7 +1365,8 @@ def _deferred(kind: str, run, wells: Iterable[str] | None, name: str | None = No
     the download button (Streamlit runs it outside the page script), memoised per run."""
     cache = _exports()  # looked up in the script thread; the callable runs in another thread
     sel = None if wells is None else tuple(sorted(map(str, wells)))
-    key = (run_key(), kind, sel)
+    samples = getattr(run.settings, "samples", 0) if getattr(run, "probabilistic", None) is not None else 0
+    key = (run_key(), kind, sel, samples, getattr(run.settings, "seed", 0))
 
     def build() -> bytes:
         from core.export import run_to_xlsx_bytes, tables_to_csv_bytes

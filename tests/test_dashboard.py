@@ -426,12 +426,10 @@ APPLY_SETTINGS_KEY = APPLY_SETTINGS
 
 
 def test_probabilistic_forecast_is_off_by_default_then_equals_core(sample_run):
-    """P90/P50/P10 shown on the overview and the well page equal core.probabilistic_field on the
-    run's own inputs (level error "auto"), the band equals core's monthly volumes over the days
-    of each month, and the field totals are core's sample-wise sums (not sums of percentiles)."""
-    from core.probabilistic import probabilistic_field
-    from core.run import decline_settings
-
+    """P90/P50/P10 shown on the overview and the well page equal core's run with the same
+    samples (``run_field`` with ``samples=40``, the batch command's path), the band equals core's
+    monthly volumes over the days of each month, the field totals are core's sample-wise sums
+    (not sums of percentiles), and the downloads then carry the percentile columns."""
     load, run = sample_run
     at = _app()
     at.switch_page("pages/overview.py").run()
@@ -445,10 +443,8 @@ def test_probabilistic_forecast_is_off_by_default_then_equals_core(sample_run):
     at.switch_page("pages/overview.py").run()
     at.button(key="prob_compute_overview").click().run()
     _ok(at)
-    prod = load.production[load.production["month"] <= run.as_of]
-    expected = probabilistic_field(
-        prod, run.fits, settings=decline_settings(run.settings), samples=40, seed=0, as_of=run.as_of,
-        level_error="auto", regime_start=run.stages.set_index("well_id")["regime_start"])
+    core_run = run_field(load, settings=RunSettings(samples=40, seed=0))
+    expected = core_run.probabilistic
     f = expected.field.set_index("quantity")
     rem = f.loc["remaining_oil_bbl"]
     shown = _frame_with(at, "P90 (low)").set_index("quantity")
@@ -456,13 +452,13 @@ def test_probabilistic_forecast_is_off_by_default_then_equals_core(sample_run):
         f"{rem[k]:,.0f}" for k in ("p90", "p50", "p10", "mean")]
     # The field P50 is the median of the sample-wise sums, not the sum of the wells' P50s.
     assert rem["p50"] != pytest.approx(expected.wells["remaining_oil_bbl_p50"].sum(), rel=1e-9)
-    table = _frame_with(at, "well_id").merge(expected.wells, on="well_id", suffixes=("_shown", "_core"))
+    table = _frame_with(at, "well_id").merge(core_run.wells, on="well_id", suffixes=("_shown", "_core"))
     pd.testing.assert_series_equal(table["eur_oil_bbl_p50_shown"], table["eur_oil_bbl_p50_core"], check_names=False)
     # Well page: the well's ranges and the band on its rate chart.
     at.switch_page("pages/well.py").run()
     _ok(at)
     well = at.selectbox(key="well_pick").value
-    w = expected.wells.set_index("well_id").loc[well]
+    w = core_run.wells.set_index("well_id").loc[well]
     ranges = _frame_with(at, "P90 (low)").set_index("quantity")
     assert list(ranges.loc["EUR oil [bbl]", ["P90 (low)", "P50", "P10 (high)"]]) == [
         f"{w[f'eur_oil_bbl_{k}']:,.0f}" for k in ("p90", "p50", "p10")]
@@ -481,6 +477,10 @@ def test_probabilistic_forecast_is_off_by_default_then_equals_core(sample_run):
     # drawn down to the economic limit, no lower (months with the P10 under the limit left off)
     keep = (high > 0) & (high >= 0.999 * limit)
     assert shown == pytest.approx(np.maximum(want[keep], limit), rel=1e-12)
+    # Downloads: the wells table with the percentile columns, as the batch command writes it.
+    at.switch_page("pages/exports.py").run()
+    _ok(at)
+    assert any("With the P90/P50/P10 columns" in c.value for c in at.caption)
 
 
 def test_type_wells_page_equals_core_and_downloads(sample_run):

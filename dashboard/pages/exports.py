@@ -13,6 +13,12 @@ st.write(
     "The workbook has a cover sheet with the inputs, the as-of month, the program version and the cautions."
 )
 
+with_prob = state.prob_run(run)
+if with_prob is not None:
+    run = with_prob
+    st.caption(f"With the P90/P50/P10 columns ({run.settings.samples} samples per well, seed {run.settings.seed}).")
+elif state.prob_settings()[0]:
+    st.caption("The P90/P50/P10 columns are added once computed (Field overview or Well review page).")
 scope = st.radio("What to download", ["Whole field", "A selection of wells", "One well"], key="export_scope", horizontal=True)
 ids = state.well_ids(run)
 wells = None
