@@ -29,6 +29,7 @@ figure printed in grey stays readable.
 
 from __future__ import annotations
 
+import math
 from collections.abc import Iterable, Mapping
 from typing import Any
 
@@ -134,10 +135,12 @@ class _Fig:
                                          font=dict(size=10)))
 
     def hline(self, y: float, line: dict, label: str | None = None, yref: str = "y",
-              xanchor: str = "left", x: float = 0.0, yanchor: str = "bottom") -> None:
+              xanchor: str = "left", x: float = 0.0, yanchor: str = "bottom", log: bool = False) -> None:
         self.shapes.append(dict(type="line", xref="paper", yref=yref, x0=0, x1=1, y0=y, y1=y, line=line))
         if label:
-            self.annotations.append(dict(x=x, y=y, xref="paper", yref=yref, text=label, showarrow=False,
+            # plotly places annotations on a log axis by log10 of the value (shapes by the value)
+            at = math.log10(y) if log else y
+            self.annotations.append(dict(x=x, y=at, xref="paper", yref=yref, text=label, showarrow=False,
                                          xanchor=xanchor, yanchor=yanchor, font=dict(size=10)))
 
     def vline(self, x: Any, line: dict, label: str | None = None) -> None:
@@ -320,7 +323,7 @@ def rate_time_figure(
         ys += list(f["rate"])
     if econ_limit_rate is not None and pd.notna(econ_limit_rate) and econ_limit_rate > 0:
         fig.hline(float(econ_limit_rate), dict(color=PALETTE["event"], dash="dashdot", width=1),
-                  f"economic limit {econ_limit_rate:.3g} {unit}", xanchor="right", x=1.0, yanchor="top")
+                  f"economic limit {econ_limit_rate:.3g} {unit}", xanchor="right", x=1.0, yanchor="top", log=True)
         ys.append(float(econ_limit_rate))
     return fig.build(title, yaxis=dict(type="log", title=dict(text=f"{stream} rate [{unit}]"), **log_ticks(ys)),
                      xaxis=dict(title=dict(text="month")))

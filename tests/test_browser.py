@@ -216,6 +216,8 @@ def test_upload_overview_well_download_and_screenshots(server, page, tmp_path):
     rows = list(wells_sheet.iter_rows(values_only=True))
     header = list(rows[0])
     assert "well_id" in header and "eur_oil_bbl" in header
+    # the P90/P50/P10 were computed on the overview: the workbook carries their columns
+    assert {"eur_oil_bbl_p90", "eur_oil_bbl_p50", "eur_oil_bbl_p10"} <= set(header)
     assert len(rows) - 1 == int(wells_shown.replace(",", ""))
     # The well shown on the Well review page has the same EUR in the workbook.
     eur_col = header.index("eur_oil_bbl")

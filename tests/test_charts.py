@@ -261,3 +261,13 @@ def test_type_well_figure_draws_percentiles_counts_and_fit():
     assert list(_trace(fig, "P10 (high)").y) == [200.0, 150.0, 120.0]
     assert list(_trace(fig, "Arps fit of the P50 (hyperbolic)").y) == [98.0, 81.0, 61.0]
     assert fig.layout.yaxis.type == "log"
+
+
+def test_economic_limit_label_sits_on_its_line_on_the_log_axis():
+    # plotly positions annotations on a log axis by log10 of the value (plotly.js axis
+    # reference: "if the axis type is log, then you must take the log of your desired range")
+    fig = charts.rate_time_figure(_history(), econ_limit_rate=5.0)
+    label = [a for a in fig.layout.annotations if a.text.startswith("economic limit")][0]
+    line = [s for s in fig.layout.shapes if s.type == "line"][0]
+    assert line.y0 == 5.0
+    assert label.y == pytest.approx(np.log10(5.0))
