@@ -864,13 +864,20 @@ def prob_settings() -> tuple[int, int]:
     return int(ss.get(PROB_SAMPLES, DEFAULT_PROB_SAMPLES)), int(ss.get(PROB_SEED, 0))
 
 
-def apply_prob_settings(samples: int, seed: int) -> None:
-    """Set the probabilistic samples (0 = off, else at least core's minimum) and the seed."""
+def check_prob_settings(samples: int, seed: int) -> tuple[int, int]:
+    """Raise :class:`InputError` unless samples are 0 (off) or at least core's minimum and the
+    seed is a whole number >= 0; returns them as ints."""
     samples, seed = int(samples), int(seed)
     if samples != 0 and samples < MIN_PROB_SAMPLES:
         raise InputError(f"probabilistic samples must be 0 (off) or at least {MIN_PROB_SAMPLES}, got {samples}")
     if seed < 0:
         raise InputError(f"the seed must be a whole number >= 0, got {seed}")
+    return samples, seed
+
+
+def apply_prob_settings(samples: int, seed: int) -> None:
+    """Set the probabilistic samples (0 = off, else at least core's minimum) and the seed."""
+    samples, seed = check_prob_settings(samples, seed)
     st.session_state[PROB_SAMPLES] = samples
     st.session_state[PROB_SEED] = seed
 
@@ -1033,14 +1040,35 @@ def prob_well_band(prob, well_id: str) -> pd.DataFrame | None:
     return calendar_day_rates(m.loc[m["well_id"].astype(str) == str(well_id)])
 
 
-def prob_field_band(prob) -> pd.DataFrame | None:
+def prob_field_band(prob, run=None) -> pd.DataFrame | None:
     """The field's P90/P50/P10 oil per forecast month (sample-wise sums over wells) as
-    calendar-day rates [bbl/d], or None."""
+    calendar-day rates [bbl/d], or None.
+
+    Core's run keeps gas and condensate wells out of the bootstrap (they are forecast on
+    their gas decline) and adds their deterministic volumes to the field totals; its
+    ``field_monthly`` leaves them out. Their deterministic forecast oil per month (from the
+    run's monthly table, a constant in every sample, so it shifts each percentile by itself)
+    is added here, so the band and the field forecast line count the same wells.
+    """
     from dashboard.charts import calendar_day_rates
 
     if prob is None or prob.field_monthly.empty:
         return None
-    return calendar_day_rates(prob.field_monthly)
+    fm = prob.field_monthly
+    prun = prob_run(run) if run is not None else None
+    if prun is not None and "prob_method" in prun.wells:
+        gas = prun.wells.loc[prun.wells["prob_method"].astype(str).str.startswith("deterministic (gas"), "well_id"]
+        if len(gas):
+            m = prun.monthly
+            sel = (m["kind"] == "forecast").to_numpy() & m["well_id"].astype(str).isin(set(gas.astype(str))).to_numpy()
+            add = m.loc[sel].groupby("month")["oil_bbl"].sum()
+            f = fm.set_index("month")
+            idx = f.index.union(add.index)
+            f = f.reindex(idx).fillna(0.0)
+            for c in ("oil_bbl_p90", "oil_bbl_p50", "oil_bbl_p10"):
+                f[c] = f[c] + add.reindex(idx).fillna(0.0)
+            fm = f.rename_axis("month").reset_index()
+    return calendar_day_rates(fm)
 
 
 def prob_field_totals(prob) -> pd.DataFrame:

@@ -34,7 +34,7 @@ with left:
     st.plotly_chart(charts.planning_status_figure(state.planning_counts(run)), key="chart_planning")
 with right:
     st.plotly_chart(charts.stage_share_figure(run.units), key="chart_stage_share")
-st.plotly_chart(charts.field_rate_figure(state.field_totals(run), band=state.prob_field_band(prob)), key="chart_field")
+st.plotly_chart(charts.field_rate_figure(state.field_totals(run), band=state.prob_field_band(prob, run)), key="chart_field")
 
 st.subheader("Wells")
 w = run.wells

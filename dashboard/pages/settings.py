@@ -59,6 +59,7 @@ if applied:
         as_of=as_of, units=units,
     )
     try:
+        state.check_prob_settings(samples, seed)  # both checked before either is applied
         state.apply_settings(values)
         state.apply_prob_settings(samples, seed)
     except InputError as exc:
