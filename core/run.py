@@ -416,16 +416,22 @@ def _month_start(s: pd.Series) -> pd.Series:
 
 
 def econ_limit_text(settings: RunSettings) -> str:
-    """One-line description of the economic limit the run used."""
+    """One-line description of the economic limits the run used (oil wells; gas wells)."""
+    if settings.econ_limit_mcfd is not None:
+        gas_txt = f"; gas and condensate wells {settings.econ_limit_mcfd:g} Mcf/d (given)"
+    elif settings.uses_economics:
+        gas_txt = "; gas and condensate wells from the same prices and costs per Mcf"
+    else:
+        gas_txt = f"; gas and condensate wells {DEFAULT_ECON_LIMIT_MCFD:g} Mcf/d (default)"
     if settings.econ_limit_bopd is not None:
-        return f"{settings.econ_limit_bopd:g} bbl/d (given)"
+        return f"{settings.econ_limit_bopd:g} bbl/d (given)" + gas_txt
     if settings.uses_economics:
         gas = f", gas {settings.gas_price:g} $/Mcf credited at each well's recent GOR" if settings.gas_price else ""
         return (
             f"from oil {settings.oil_price:g} $/bbl{gas}, opex {settings.opex_per_month:g} $/month, "
-            f"NRI {settings.nri:g}, WI {settings.wi:g}, severance tax {settings.severance_tax:g}"
+            f"NRI {settings.nri:g}, WI {settings.wi:g}, severance tax {settings.severance_tax:g}" + gas_txt
         )
-    return f"{DEFAULT_ECON_LIMIT_BOPD:g} bbl/d (default)"
+    return f"{DEFAULT_ECON_LIMIT_BOPD:g} bbl/d (default)" + gas_txt
 
 
 def _actuals_per_well(prod: pd.DataFrame) -> pd.DataFrame:
@@ -1220,6 +1226,16 @@ def _settings_diff(a: RunSettings, b: RunSettings) -> list[str]:
     return [f.name for f in dataclasses.fields(RunSettings) if getattr(a, f.name) != getattr(b, f.name)]
 
 
+def _check_reusable(previous: RunResult) -> None:
+    """The previous run must carry the tables an incremental re-run reuses."""
+    need = {"fits": {"well_id", "stream", "n_months_used", "override", "status"}, "stages": {"well_id"},
+            "fluids": {"well_id", "fluid_type"}, "candidates": {"well_id"}, "units": {"unit"}}
+    for name, cols in need.items():
+        t = getattr(previous, name, None)
+        if t is None or not isinstance(t, pd.DataFrame) or not cols <= set(t.columns):
+            raise ValueError(f"the previous run has no usable {name} table (an incremental re-run reuses it): use run_field")
+
+
 def _check_same_load(previous: RunResult, load: Any) -> None:
     prev = previous.inputs or {}
     for key in ("content_sha256", "rows_used"):
@@ -1527,6 +1543,7 @@ def rerun_wells(
             "rerun_wells keeps the other wells' forecasts, so the settings must equal the previous "
             f"run's; these differ: {', '.join(diff)} (use rerun_forecast or run_field)"
         )
+    _check_reusable(previous)
     _check_same_load(previous, load)
     prod_all, prod, as_of = _prod_cut(load, settings)
     dsettings = decline_settings(settings)
@@ -1620,6 +1637,7 @@ def rerun_forecast(
             "these settings change the fits, so the forecast cannot be re-run on the kept fits: "
             f"{', '.join(refit_needed)} (use run_field)"
         )
+    _check_reusable(previous)
     _check_same_load(previous, load)
     fits = previous.fits
     for s in ("oil", "gas"):

@@ -674,3 +674,16 @@ def test_reruns_with_probabilistic_forecasts_equal_the_full_run(field_files):
     pd.testing.assert_frame_equal(inc.probabilistic.field, full.probabilistic.field, check_exact=True)
     s2 = RunSettings(econ_limit_bopd=3.0, workers=1, samples=20, seed=6)
     _assert_same_run(rerun_forecast(full, load, settings=s2, overrides=ov), run_field(load, settings=s2, overrides=ov))
+
+
+def test_reruns_refuse_a_previous_run_without_its_fits(sample_base):
+    import dataclasses
+
+    from core.run import rerun_forecast, rerun_wells
+
+    load, s, base = sample_base
+    bare = dataclasses.replace(base, fits=pd.DataFrame())  # e.g. a stored run without its fit table
+    with pytest.raises(ValueError, match="fits"):
+        rerun_wells(bare, load, settings=s, overrides=None, wells=[])
+    with pytest.raises(ValueError, match="fits"):
+        rerun_forecast(bare, load, settings=s)
