@@ -120,6 +120,10 @@ PEAK_MIN_ABOVE_RSI_LOG = math.log(1.25)
 BELOW_TREND_POINTS = 3
 #: Analogue wells needed to estimate months to the GOR peak.
 MIN_ANALOGUES = 3
+#: Window of "recent" oil for the unit stage (months up to and including the as-of month).
+UNIT_RECENT_MONTHS = 12
+#: Stage names used in the unit evidence.
+_STAGE_EVENT = {2: "bubble-point crossing", 3: "GOR rise above Rsi", 4: "GOR peak"}
 
 PLANNING_STATUSES = ("window_ahead", "window_open", "window_closing", "window_passed", "not_applicable")
 
@@ -1450,6 +1454,182 @@ def track_wells(
     return out.reset_index(drop=True)[WELL_COLUMNS]
 
 
+
+def _majority_value(codes: np.ndarray, weight: np.ndarray, value: np.ndarray, n: int) -> np.ndarray:
+    """Per group: the smallest value reached by a strict weight majority.
+
+    For each group ``g`` in ``range(n)``, the smallest ``v`` such that the rows of ``g``
+    with ``value <= v`` hold more than half of the group's weight (rows with NaN value are
+    left out; ``+inf`` stands for "not reached"). NaN when no row of the group counts or
+    the majority lies at ``+inf``. Vectorised (one lexsort).
+    """
+    out = np.full(n, np.nan)
+    ok = ~np.isnan(value) & (codes >= 0) & (weight > 0)
+    if not ok.any():
+        return out
+    c, w, v = codes[ok], weight[ok], value[ok]
+    order = np.lexsort((v, c))
+    c, w, v = c[order], w[order], v[order]
+    tot = np.bincount(c, weights=w, minlength=n)
+    start = np.r_[0, np.flatnonzero(np.diff(c)) + 1]
+    cum = np.cumsum(w)
+    base = np.repeat(cum[start] - w[start], np.diff(np.r_[start, c.size]))
+    hit = (cum - base) > 0.5 * tot[c] * (1.0 + 1e-12)
+    first = np.full(n, -1)
+    idx = np.flatnonzero(hit)
+    cg = c[idx]
+    keep = np.r_[True, cg[1:] != cg[:-1]] if idx.size else np.zeros(0, bool)
+    first[cg[keep]] = idx[keep]
+    has = first >= 0
+    out[has] = v[first[has]]
+    out[~np.isfinite(out)] = np.nan
+    return out
+
+
+def _unit_from_wells(wtab: pd.DataFrame, n_units: int, as_of: int) -> dict:
+    """Unit stage, dates and confidence from its staged wells (rule in :func:`track_units`).
+
+    ``wtab`` has one row per staged well: ``u`` (unit code), ``w`` (weight: recent oil),
+    ``stage`` (1-4), ``bp_mi``, ``s2_mi``, ``pk_mi``, ``pk_gor``, ``to_pk`` (months to the
+    peak estimate), ``conf`` (high/medium/low).
+    """
+    u = wtab["u"].to_numpy(np.int64)
+    w = wtab["w"].to_numpy(float)
+    st = wtab["stage"].to_numpy(float)
+    # stage reached by wells holding a strict majority of the weight: the largest k with
+    # share(stage >= k) > 1/2 (= majority of the values -stage sorted ascending)
+    stage = -_majority_value(u, w, -st, n_units)
+    dates = {}
+    for k, col in ((2, "bp_mi"), (3, "s2_mi"), (4, "pk_mi")):
+        d = wtab[col].to_numpy(float)
+        # wells short of stage k: not reached (+inf); reached but undated: left out
+        v = np.where(st >= k, d, np.inf)
+        m = _majority_value(u, w, v, n_units)
+        dates[col] = np.where(stage >= k, m, np.nan)
+    # projected peak month of each well: its peak (stage 4), as-of + its analogue estimate
+    # (stages 2-3), not reached (stage 1 or no estimate)
+    proj = np.where(st >= 4, wtab["pk_mi"].to_numpy(float),
+                    np.where(np.isfinite(wtab["to_pk"].to_numpy(float)), as_of + wtab["to_pk"].to_numpy(float),
+                             np.inf))
+    proj = np.where(st >= 4, np.where(np.isfinite(proj), proj, as_of), proj)
+    pk_proj = _majority_value(u, w, proj, n_units)
+    to_pk = np.where(np.isfinite(pk_proj), np.maximum(pk_proj - as_of, 0.0), np.nan)
+    to_pk = np.where(stage == 4, 0.0, np.where(np.isfinite(stage), to_pk, np.nan))
+    pk_gor = np.where(stage == 4, _majority_value(u, w, np.where(st >= 4, wtab["pk_gor"].to_numpy(float), np.nan),
+                                                  n_units), np.nan)
+    tot = np.bincount(u, weights=w, minlength=n_units)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        share = {k: np.bincount(u, weights=w * (st == k), minlength=n_units) / tot for k in (1, 2, 3, 4)}
+        score = {"high": 2.0, "medium": 1.0, "low": 0.0}
+        cs = wtab["conf"].map(score).fillna(0.0).to_numpy(float)
+        mean_conf = np.bincount(u, weights=w * cs, minlength=n_units) / tot
+    agree = np.select([stage == k for k in (1, 2, 3, 4)], [share[k] for k in (1, 2, 3, 4)], default=np.nan)
+    conf = np.where((mean_conf >= 1.5) & (agree >= 0.75), "high",
+                    np.where((mean_conf >= 0.75) & (agree >= 0.5), "medium", "low"))
+    conf = np.where(np.isfinite(stage), conf, "")
+    return {"stage": stage, **dates, "to_pk": to_pk, "pk_gor": pk_gor, "share": share, "agree": agree,
+            "conf": conf, "tot": tot}
+
+
+def _unit_evidence(units, stage_u, by_wells, use_cum, fw, sum_stage, full, wtab, prod, wcodes, wname_idx,
+                   unit_of, pmi, oil, summed_ev, app) -> list[str]:
+    """Evidence text of each unit: the wells' rule, the oil shares, and the summed-volume
+    analysis with the reason when the two disagree."""
+    nu = len(units)
+    col = {2: "bp_mi", 3: "s2_mi", 4: "pk_mi"}
+    sum_dates = {k: full[c].to_numpy(float) for k, c in col.items()}
+    # "leads" case: oil share, in the month the summed series dated its event, of the wells
+    # that had reached that event by then (vectorised over all units)
+    lead_share = np.full(nu, np.nan)
+    lead = app & by_wells & np.isfinite(sum_stage) & (sum_stage > np.nan_to_num(stage_u, nan=0))
+    if lead.any():
+        well_u = units.get_indexer(unit_of.reindex(wname_idx).astype(str))
+        m_u = np.where(lead, sum_stage, 0).astype(int)
+        e_u = np.select([m_u == k for k in (2, 3, 4)], [sum_dates[k] for k in (2, 3, 4)], default=np.nan)
+        well_ev = np.full(len(wname_idx), np.inf)
+        staged_w = np.zeros(len(wname_idx), bool)
+        pos = wtab["pos"].to_numpy(np.int64)
+        staged_w[pos] = True
+        mk = m_u[wtab["u"].to_numpy(np.int64)]
+        ev = np.select([mk == k for k in (2, 3, 4)], [wtab[col[k]].to_numpy(float) for k in (2, 3, 4)],
+                       default=np.nan)
+        well_ev[pos] = np.where(np.isfinite(ev), ev, np.inf)
+        ur = well_u[wcodes]
+        er = np.where(ur >= 0, e_u[np.maximum(ur, 0)], np.nan)
+        mask = staged_w[wcodes] & (pmi == er) & (ur >= 0)
+        reached = well_ev[wcodes] <= er
+        num = np.bincount(ur[mask], weights=(oil * reached)[mask], minlength=nu)
+        den = np.bincount(ur[mask], weights=oil[mask], minlength=nu)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            lead_share = np.where(den > 0, num / den, np.nan)
+    out = []
+    wt = wtab.assign(u=wtab["u"].to_numpy(np.int64))
+    groups = {g: t for g, t in wt.groupby("u")}
+    for i in range(nu):
+        if not app[i] or not np.isfinite(stage_u[i]):
+            out.append(str(summed_ev[i]))
+            continue
+        k = int(stage_u[i])
+        if not by_wells[i]:
+            out.append(f"unit stage {k} from the summed-volume GOR (no staged well with oil to weigh): "
+                       + str(summed_ev[i]))
+            continue
+        basis = ("cumulative oil (no oil in the last "
+                 f"{UNIT_RECENT_MONTHS} months)") if use_cum[i] else f"oil of the last {UNIT_RECENT_MONTHS} months"
+        sh = [fw["share"][j][i] for j in (1, 2, 3, 4)]
+        ge = sum(sh[k - 1:])
+        t = groups.get(i)
+        n_st = 0 if t is None else len(t)
+        parts = [f"unit stage {k} by its wells: wells holding {100 * ge:.0f} % of the unit's {basis} "
+                 f"have reached stage {k} or later (rule: the stage reached by the wells holding a majority of the "
+                 f"unit's recent oil, common practice); {basis} by well stage 1/2/3/4: "
+                 + "/".join(f"{100 * x:.0f}" for x in sh) + f" % over {n_st} staged wells"]
+        if k >= 2 and t is not None:
+            bp = t["bp_mi"].to_numpy(float)
+            bp = bp[np.isfinite(bp)]
+            if bp.size:
+                parts.append(f"unit below Pb from {_fmt_month(fw['bp_mi'][i])} (month by which wells holding "
+                             f"a majority of the recent oil had crossed; first well {_fmt_month(bp.min())})")
+        if k == 4:
+            parts.append(f"GOR peak {_fmt_month(fw['pk_mi'][i])} (month by which wells holding a majority of "
+                         f"the recent oil had passed their peaks)")
+        m = sum_stage[i]
+        if not np.isfinite(m):
+            parts.append("summed-volume GOR analysis gave no stage: " + str(summed_ev[i]))
+        elif int(m) == k:
+            parts.append(f"the summed-volume GOR analysis agrees (stage {k}): " + str(summed_ev[i]))
+        elif m < k:
+            ev_k = int(m) + 1
+            d = t[col[ev_k]].to_numpy(float) if t is not None else np.array([])
+            d = d[np.isfinite(d)]
+            spread = (f" (their {_STAGE_EVENT[ev_k]} dates spread from {_fmt_month(d.min())} to "
+                      f"{_fmt_month(d.max())})") if d.size else ""
+            parts.append(f"DISAGREES: the summed-volume GOR says stage {int(m)}; it lags the wells because "
+                         f"summing volumes averages wells at different points of their paths{spread}: a GOR "
+                         f"rising in some wells offsets a GOR falling in others, so the unit series does not "
+                         f"show the {_STAGE_EVENT[ev_k]} the wells show; summed-volume analysis: "
+                         + str(summed_ev[i]))
+        else:
+            mm = int(m)
+            ls = lead_share[i]
+            when = _fmt_month(sum_dates[mm][i]) if np.isfinite(sum_dates[mm][i]) else "its event month"
+            if np.isfinite(ls):
+                mix = (f"in {when}, when the summed series dated its {_STAGE_EVENT[mm]}, {100 * ls:.0f} % of "
+                       f"the unit's oil came from wells that had themselves reached it"
+                       + (", so that date reflects the changing mix of wells (new wells coming on, old "
+                          "wells declining), not the wells' own GORs" if ls < 0.5 else
+                          ", so the summed series dated it when those wells dominated the unit's oil"))
+            else:
+                mix = f"the summed series dated its {_STAGE_EVENT[mm]} in {when}"
+            parts.append(f"DISAGREES: the summed-volume GOR says stage {mm}, ahead of the wells: the summed GOR "
+                         f"is an oil-weighted mean of the wells' GORs, so it moves with the mix of wells as "
+                         f"well as with their GORs; {mix}; wells holding {100 * (1 - sum(sh[mm - 1:])):.0f} % of "
+                         f"today's oil have not reached stage {mm}; summed-volume analysis: "
+                         + str(summed_ev[i]))
+        out.append("; ".join(parts))
+    return out
+
+
 def track_units(
     production: pd.DataFrame,
     well_stages: pd.DataFrame,
@@ -1548,29 +1728,85 @@ def track_units(
             tot["cum_" + c] = pd.Series(t_.to_numpy(), index=unames_all[t_.index.to_numpy()]).reindex(units).to_numpy(float)
         else:
             tot["cum_" + c] = np.full(len(units), np.nan)
-    bp_mi = full["bp_mi"].to_numpy(float)
+
+    # ---- unit stage from its wells (the summed-volume analysis above is kept as evidence)
+    nu = len(units)
+    oil = np.clip(np.nan_to_num(pd.to_numeric(prod["oil_bbl"], errors="coerce").to_numpy(float)), 0.0, None)
+    pmi = _month_index(prod["month"])
+    recent = pmi > as_of_i - UNIT_RECENT_MONTHS
+    w_recent = np.bincount(wcodes, weights=oil * recent, minlength=len(wnames))
+    w_cum = np.bincount(wcodes, weights=oil, minlength=len(wnames))
+    wname_idx = pd.Index(np.asarray(wnames, dtype=object))
+    staged = ws[ws["stage"].notna()]
+    pos = wname_idx.get_indexer(staged.index)
+    staged = staged[pos >= 0]
+    pos = pos[pos >= 0]
+    su = units.get_indexer(unit_of.reindex(staged.index).astype(str))
+    wr, wc = w_recent[pos], w_cum[pos]
+    # weight: oil of the last UNIT_RECENT_MONTHS months; a unit whose staged wells produced
+    # none in that window falls back to cumulative oil
+    r_tot = np.bincount(np.maximum(su, 0), weights=wr * (su >= 0), minlength=nu)
+    use_cum = (r_tot <= 0)
+    wgt = np.where(use_cum[np.maximum(su, 0)], wc, wr)
+
+    def _col_or(name, default):
+        return staged[name] if name in staged else pd.Series(default, index=staged.index)
+
+    wtab = pd.DataFrame({
+        "u": su, "pos": pos, "w": wgt, "stage": staged["stage"].astype(float).to_numpy(),
+        "bp_mi": _month_index_or_nan(_col_or("bubble_point_date", pd.NaT)),
+        "s2_mi": _month_index_or_nan(_col_or("stage2_end_date", pd.NaT)),
+        "pk_mi": _month_index_or_nan(_col_or("gor_peak_date", pd.NaT)),
+        "pk_gor": pd.to_numeric(_col_or("gor_peak_scf_stb", np.nan), errors="coerce").to_numpy(float),
+        "to_pk": pd.to_numeric(_col_or("months_to_gor_peak_est", np.nan), errors="coerce").to_numpy(float),
+        "conf": _col_or("stage_confidence", "low").astype(str).to_numpy(object),
+    })
+    wtab = wtab[wtab["u"] >= 0]
+    fw = _unit_from_wells(wtab, nu, as_of_i)
+    sum_stage = full["stage"].to_numpy(float)
+    app = out["stage_reason"].to_numpy(object) == ""
+    # decided stage: the wells' majority; the summed-volume stage only when the wells give none
+    by_wells = np.isfinite(fw["stage"]) & app
+    stage_u = np.where(by_wells, fw["stage"], np.where(app, sum_stage, np.nan))
+    bp_u = np.where(by_wells, fw["bp_mi"], full["bp_mi"].to_numpy(float))
+    s2_u = np.where(by_wells, fw["s2_mi"], full["s2_mi"].to_numpy(float))
+    pk_u = np.where(by_wells, fw["pk_mi"], full["pk_mi"].to_numpy(float))
+    bp_u, s2_u, pk_u = (np.where(stage_u >= k, d, np.nan) for k, d in ((2, bp_u), (3, s2_u), (4, pk_u)))
+    pk_gor_u = np.where(by_wells, fw["pk_gor"], full["pk_gor"].to_numpy(float))
+    to_pk_u = np.where(by_wells, fw["to_pk"], out["months_to_gor_peak_est"].to_numpy(float))
+    conf_u = np.where(by_wells, fw["conf"], out["stage_confidence"].to_numpy(object))
+    first_u = full["first_mi"].to_numpy(float)
+    ev_u = np.select([stage_u == 1, stage_u == 2, stage_u == 3, stage_u == 4], [first_u, bp_u, s2_u, pk_u],
+                     default=np.nan)
+    status_u = planning_status(stage_u)
+    regime_u = np.where(stage_u >= 2, bp_u, np.nan)
+    evidence = _unit_evidence(units, stage_u, by_wells, use_cum, fw, sum_stage, full, wtab, prod, wcodes,
+                              wname_idx, unit_of, pmi, oil, out["stage_evidence"].to_numpy(object), app)
     table = pd.DataFrame({
         "unit": units.to_numpy(),
-        "stage": out["stage"].to_numpy(),
+        "stage": pd.array(np.where(np.isfinite(stage_u), stage_u, np.nan), dtype="Float64").astype("Int64"),
         "stage_reason": out["stage_reason"].to_numpy(),
-        "stage_confidence": out["stage_confidence"].to_numpy(),
+        "stage_confidence": np.where(np.isfinite(stage_u), conf_u, ""),
         "n_wells": n_wells.to_numpy(),
         **shares,
+        **{f"oil_share_stage_{k}": np.where(by_wells, fw["share"][k], np.nan) for k in (1, 2, 3, 4)},
+        "stage_summed_gor": pd.array(np.where(np.isfinite(sum_stage), sum_stage, np.nan),
+                                     dtype="Float64").astype("Int64"),
         "rsi_scf_stb": out["rsi_scf_stb"].to_numpy(),
         "bubble_point_psia": out["bubble_point_psia"].to_numpy(),
-        "bubble_point_date": out["bubble_point_date"].to_numpy(),
-        "months_since_bubble_point": as_of_i - bp_mi,
-        "stage2_end_date": out["stage2_end_date"].to_numpy(),
-        "gor_peak_date": out["gor_peak_date"].to_numpy(),
-        "gor_peak_scf_stb": out["gor_peak_scf_stb"].to_numpy(),
-        "months_to_gor_peak_est": out["months_to_gor_peak_est"].to_numpy(),
-        "planning_status": out["planning_status"].to_numpy(),
-        "planning_rule": out["planning_rule"].to_numpy(),
-        "months_since_event": out["months_since_event"].to_numpy(),
-        "regime_start": out["regime_start"].to_numpy(),
+        "bubble_point_date": _index_to_month(bp_u),
+        "months_since_bubble_point": as_of_i - bp_u,
+        "stage2_end_date": _index_to_month(s2_u),
+        "gor_peak_date": _index_to_month(pk_u),
+        "gor_peak_scf_stb": pk_gor_u,
+        "months_to_gor_peak_est": to_pk_u,
+        "planning_status": status_u,
+        "planning_rule": [PLANNING_RULES[s_] for s_ in status_u],
+        "months_since_event": as_of_i - ev_u,
+        "regime_start": _index_to_month(regime_u),
         "gor_scf_stb": latest_gor.reindex(units).to_numpy(float),
         **tot,
-        "stage_evidence": out["stage_evidence"].to_numpy(),
+        "stage_evidence": evidence,
     })
     table["stage"] = table["stage"].astype("Int64")
     return table

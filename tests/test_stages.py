@@ -532,3 +532,150 @@ def test_header_gap_filled_from_the_unit_median(sample_runs):
         assert out.loc[well, "stage"] == expected[well]
     # wells with a complete header say nothing of the kind
     assert "header gap" not in out.loc["QM-L10", "stage_evidence"]
+
+
+# ---------------------------------------------------------------------------------------
+# unit stage from its wells (rule: the stage reached by the wells holding a strict majority
+# of the unit's oil of the last 12 months; common practice)
+# ---------------------------------------------------------------------------------------
+def _expected_unit_stage(prod: pd.DataFrame, ws: pd.DataFrame, unit: str, months: int = 12):
+    """Plain-loop statement of the rule, independent of the vectorised code: weights are
+    each staged well's oil over the last ``months`` months; the unit stage is the largest
+    k such that the wells at stage >= k hold more than half of that oil. Returns the stage
+    and the oil share by well stage."""
+    as_of = pd.Timestamp(prod["month"].max())
+    cut = as_of - pd.DateOffset(months=months - 1)
+    p = prod[(prod["unit"] == unit) & (prod["month"] >= cut)]
+    recent = p.groupby("well_id")["oil_bbl"].sum()
+    stage = ws.set_index("well_id")["stage"]
+    w = {well: float(recent.get(well, 0.0)) for well in stage.index
+         if pd.notna(stage[well]) and well in set(prod.loc[prod["unit"] == unit, "well_id"])}
+    total = sum(w.values())
+    share = {k: sum(v for well, v in w.items() if stage[well] == k) / total for k in (1, 2, 3, 4)}
+    for k in (4, 3, 2, 1):
+        if sum(v for well, v in w.items() if stage[well] >= k) > 0.5 * total:
+            return k, share
+    raise AssertionError("no stage")
+
+
+def _majority_date(ws: pd.DataFrame, weights: dict, col: str, k: int):
+    """Month by which the wells holding a strict majority of the weight had reached
+    event k (wells short of stage k count as not reached): plain loop."""
+    st = ws.set_index("well_id")
+    total = sum(weights.values())
+    dated = sorted((st.loc[w, col], v) for w, v in weights.items() if st.loc[w, "stage"] >= k)
+    acc = 0.0
+    for d, v in dated:
+        acc += v
+        if acc > 0.5 * total:
+            return d
+    return pd.NaT
+
+
+def _staggered_unit():
+    """Eight stage-4 wells started 12 months apart (stand-in shapes, 4 % noise, oil rate
+    declining 1 %/month): every well is past its GOR peak, the last one 16 months ago,
+    while the unit's summed-volume GOR stays within a few % of its maximum (young wells'
+    high GOR in the oil-weighted sum offsets the old wells' fall)."""
+    wells = []
+    n_end = 7 * 12 + 65 + 16
+    for k in range(8):
+        m = n_end - 12 * k
+        g = _noisy(_shape(m, 700.0, 10, 15, 40, d4=12, decline=0.15), 0.04, 50 + k)
+        oil = 9000.0 * np.exp(-0.01 * np.arange(m))
+        wells.append(_table(f"ST{k}", g, start=pd.Timestamp("2000-01-01") + pd.DateOffset(months=12 * k),
+                            unit="Stagger", oil=oil, days=np.full(m, 30.0)))
+    return pd.concat(wells, ignore_index=True)
+
+
+def test_unit_of_staggered_stage_4_wells_is_stage_4():
+    prod = _staggered_unit()
+    ws = track_wells(prod, None, None)
+    # preconditions, from the well table and the summed series: every well stage 4, and the
+    # summed-volume GOR of the last 12 months within 5 % of that of the 12 months before
+    # (flat), so the summed-volume analysis alone does not confirm a peak
+    assert (ws["stage"] == 4).all(), ws[["well_id", "stage"]]
+    um = unit_monthly(prod, ws)
+    yr1 = um["gas_mcf"].iloc[-12:].sum() / um["oil_bbl"].iloc[-12:].sum()
+    yr0 = um["gas_mcf"].iloc[-24:-12].sum() / um["oil_bbl"].iloc[-24:-12].sum()
+    assert abs(yr1 / yr0 - 1.0) < 0.05
+    u = track_units(prod, ws, None).set_index("unit").loc["Stagger"]
+    assert u["stage_summed_gor"] < 4
+    # the unit stage follows its wells
+    assert u["stage"] == 4 and u["planning_status"] == "window_passed"
+    assert u["months_to_gor_peak_est"] == 0.0
+    assert u["oil_share_stage_4"] == pytest.approx(1.0)
+    assert "DISAGREES" in u["stage_evidence"] and "lags the wells" in u["stage_evidence"]
+    # unit dates: month by which the wells holding a majority of the recent oil had
+    # crossed / passed the peak (plain-loop statement of the rule)
+    as_of = prod["month"].max()
+    rec = prod[prod["month"] > as_of - pd.DateOffset(months=12)].groupby("well_id")["oil_bbl"].sum().to_dict()
+    assert u["gor_peak_date"] == _majority_date(ws, rec, "gor_peak_date", 4)
+    assert u["bubble_point_date"] == _majority_date(ws, rec, "bubble_point_date", 2)
+    assert u["months_since_bubble_point"] == pytest.approx(
+        (as_of.year - u["bubble_point_date"].year) * 12 + as_of.month - u["bubble_point_date"].month)
+
+
+def test_unit_with_mixed_stages_takes_the_stage_of_the_majority_of_recent_oil():
+    # Four wells in stages 4, 3, 2, 1 (cases of test_four_clean_wells) at 30/25/25/20 % of
+    # the oil: stage >= 3 holds 55 % (a majority), stage 4 30 % -> unit stage 3 (hand
+    # calculation). By well count the shares are 25 % each and stage >= 3 is no majority
+    # (50 %): the rule weighs by oil, not by wells.
+    n = 150
+    cases = {"M4": ((30, 15, 40), 3000.0), "M3": ((60, 15, 120), 2500.0),
+             "M2": ((120, 40, 40), 2500.0), "M1": ((200, 15, 40), 2000.0)}
+    prod = pd.concat([_table(w, _noisy(_shape(n, 700.0, *c, dip=0.15), 0.05, k), unit="Mix",
+                             oil=np.full(n, q), days=np.full(n, 30.0))
+                      for k, (w, (c, q)) in enumerate(cases.items())], ignore_index=True)
+    ws = track_wells(prod, None, None)
+    assert ws.set_index("well_id")["stage"].to_dict() == {"M4": 4, "M3": 3, "M2": 2, "M1": 1}
+    u = track_units(prod, ws, None).set_index("unit").loc["Mix"]
+    expected, share = _expected_unit_stage(prod, ws, "Mix")
+    assert expected == 3
+    assert u["stage"] == expected and u["planning_status"] == "window_closing"
+    for k in (1, 2, 3, 4):
+        assert u[f"oil_share_stage_{k}"] == pytest.approx(share[k], rel=1e-9)
+        assert u[f"share_stage_{k}"] == 0.25
+    rec = {w: 150.0 * q for w, (_, q) in cases.items()}  # equal months: weights prop. to rate
+    assert u["bubble_point_date"] == _majority_date(ws, rec, "bubble_point_date", 2)
+    assert u["stage2_end_date"] == _majority_date(ws, rec, "stage2_end_date", 3)
+    assert pd.isna(u["gor_peak_date"])
+
+
+@pytest.fixture(scope="module")
+def sample_full():
+    from pathlib import Path
+
+    from core.fluids import classify_field
+    from core.production import load_production
+
+    root = Path(__file__).resolve().parents[1] / "sample_wells"
+    load = load_production(root / "production.csv", well_header=root / "well_header.csv")
+    ws = track_wells(load.production, load.wells, classify_field(load.production, load.wells))
+    return load.production, ws, track_units(load.production, ws, load.wells)
+
+
+def test_sample_field_unit_stages_follow_their_wells(sample_full):
+    # Expectations derived from the well table (plain-loop rule above), not a list.
+    prod, ws, units = sample_full
+    for _, u in units.iterrows():
+        staged = ws[ws["well_id"].isin(prod.loc[prod["unit"] == u["unit"], "well_id"]) & ws["stage"].notna()]
+        if staged.empty:
+            assert pd.isna(u["stage"]) and u["planning_status"] == "not_applicable"
+            continue
+        expected, share = _expected_unit_stage(prod, ws, u["unit"])
+        assert u["stage"] == expected, (u["unit"], u["stage_evidence"])
+        assert u["planning_status"] == planning_status([expected])[0]
+        for k in (1, 2, 3, 4):
+            assert u[f"oil_share_stage_{k}"] == pytest.approx(share[k], abs=1e-9)
+            if u[f"share_stage_{k}"] == 1.0:  # all wells in one stage -> that stage
+                assert u["stage"] == k
+        # dates present exactly for the events the unit stage has passed
+        assert pd.notna(u["bubble_point_date"]) == (expected >= 2)
+        assert pd.notna(u["stage2_end_date"]) == (expected >= 3)
+        assert pd.notna(u["gor_peak_date"]) == (expected >= 4)
+        # the summed-volume analysis is kept as evidence; a disagreement is said
+        disagree = pd.notna(u["stage_summed_gor"]) and u["stage_summed_gor"] != u["stage"]
+        assert ("DISAGREES" in u["stage_evidence"]) == disagree
+    lower = units.set_index("unit").loc["Lower Sand"]
+    assert lower["share_stage_4"] == 1.0 and lower["stage"] == 4 and lower["planning_status"] == "window_passed"
