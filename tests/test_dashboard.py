@@ -234,6 +234,15 @@ def test_well_page_shows_core_numbers_and_an_override_refits_it(sample_run):
     at.text_input(key="ov_author").input("A. Engineer")
     at.button(key=APPLY_OVERRIDE).click().run()
     _ok(at)
+    import core.run
+
+    # with core's incremental step the override re-runs that well only, from the cached run
+    if hasattr(core.run, "rerun_wells"):
+        try:
+            path = at.session_state["dd_run_path"][0]
+        except KeyError:  # the run was already cached by an earlier test in this process
+            path = "cached"
+        assert path in ("re-run of 1 well", "cached")
     ov = WellOverride(b=0.3, reason="b from the unit's analogue wells", author="A. Engineer")
     expected = run_field(load, settings=RunSettings(), overrides={well: ov}).wells.set_index("well_id").loc[well]
     assert _metric(at, "b") == f"{expected['b']:.2f}"
