@@ -9,8 +9,8 @@ Every exported table follows the same rules, whatever the writer:
 * text that a spreadsheet would execute as a formula (a cell starting with ``=``, ``+``,
   ``-``, ``@``, a tab or a carriage return) is neutralised by prefixing a single quote
   (the guidance of the OWASP "CSV Injection" page, common practice), in the CSV files and in
-  the workbook alike; the workbook's cover sheet says so. The workbook is also written with
-  xlsxwriter's ``strings_to_formulas`` off, so no text is ever stored as a formula.
+  the workbook alike; the workbook's cover sheet says so. The workbook writer stores text as
+  inline strings and numbers as values and never writes a formula cell.
 
 When the monthly table has more rows than a worksheet holds (1,048,576 rows including the
 header), the workbook carries yearly volumes per well instead (and says so on its cover sheet)
