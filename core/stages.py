@@ -45,6 +45,10 @@ Method (all series are treated alike: a well, or a unit built from summed volume
   material-balance paths (one recovery factor per well, one Corey set per PVT group) and
   the stage and dates are read from the match (see ``_mb_fit``).
 
+* A reservoir unit's stage is decided from its wells: the stage reached by the wells
+  holding a majority of the unit's recent oil (common practice); its summed-volume GOR is
+  analysed by the same rules and kept as evidence (see :func:`track_units`).
+
 Everything is vectorised over series: the producing months are packed into a
 (series x month) matrix and every step is a numpy/scipy operation on the whole matrix.
 """
@@ -1655,6 +1659,7 @@ def track_units(
     DataFrame
         One row per unit: ``unit``, ``stage``, ``stage_confidence``, ``n_wells``,
         ``share_stage_1`` .. ``share_stage_4``, ``share_not_applicable``,
+        ``oil_share_stage_1`` .. ``oil_share_stage_4``, ``stage_summed_gor``,
         ``bubble_point_date``, ``months_since_bubble_point``, ``gor_peak_date``,
         ``months_to_gor_peak_est``, ``planning_status``, ``planning_rule``,
         ``months_since_event``, ``rsi_scf_stb``, ``bubble_point_psia``,
@@ -1663,12 +1668,31 @@ def track_units(
 
     Notes
     -----
-    The unit series is built from summed volumes (unit GOR = 1000 sum gas / sum oil of its
-    wells each month, i.e. the volume-weighted GOR), its pressure is the median of its
-    wells' surveys in a month, and its stage follows the same rules as a well's. Only wells
-    with an applicable stage contribute to the unit's GOR series (a gas-condensate well
-    would distort it). Analogue durations for the months-to-peak estimate come from the
-    wells that passed their GOR peak.
+    **Unit stage (decided from the wells; common practice).** The stage reached by the
+    wells holding a strict majority of the unit's recent oil: weights are each staged
+    well's oil over the last ``UNIT_RECENT_MONTHS`` months (cumulative oil if the unit's
+    staged wells produced none in that window), and the unit stage is the largest k such
+    that the wells at stage >= k hold more than half of that oil (an oil-weighted median
+    stage; a 50/50 split gives the earlier stage). A unit's summed-volume GOR mixes wells
+    at different points of their paths, so it lags the wells (staggered peaks smear into a
+    flat top) or leads them (the oil weighting follows the mix of wells as well as their
+    GORs); it is analysed as before (same rules as a well: unit GOR = 1000 sum gas / sum oil
+    of its staged wells each month, pressure the median of its wells' surveys in a month)
+    and kept as evidence: ``stage_summed_gor`` and ``stage_evidence``, which says when the
+    two disagree and why. The summed-volume stage decides only when the wells give none.
+
+    **Unit dates, same rule.** ``bubble_point_date``, ``stage2_end_date``,
+    ``gor_peak_date``: the month by which the wells holding a majority of the recent oil
+    had reached the event (a weighted median of the wells' event dates, wells short of the
+    event counting as not reached), so a date exists exactly when the unit stage has
+    passed the event. ``months_to_gor_peak_est``: months until the wells holding a
+    majority of the recent oil are projected past their peaks (each well's own estimate;
+    0 at stage 4; NaN when that majority includes wells without an estimate).
+    ``gor_peak_scf_stb``: weighted median of the peak GORs of the wells past their peak.
+    ``stage_confidence``: high when the oil-weighted mean of the wells' confidences
+    (high 2, medium 1, low 0) is >= 1.5 and >= 75 % of the recent oil is in wells at the
+    unit stage; medium at >= 0.75 and >= 50 %; else low. ``oil_share_stage_1..4``: the
+    recent-oil shares by well stage (``share_stage_k`` are well-count shares).
     """
     _check_production(production, ("well_id", "month", "oil_bbl", "unit"))
     as_of_i = _as_of_index(production, as_of)

@@ -39,6 +39,23 @@ def _mi(s: pd.Series) -> pd.Series:
     return d.dt.year * 12 + d.dt.month
 
 
+def _unit_truth(production: pd.DataFrame, m: pd.DataFrame, months: int = 12) -> pd.Series:
+    """The unit rule applied to the generator's TRUE well stages: the largest k such that
+    wells at true stage >= k hold more than half of the unit's oil of the last ``months``
+    months (oil of the wells with a true stage)."""
+    p = production[production["month"] > production["month"].max() - pd.DateOffset(months=months)]
+    rec = p.groupby("well_id")["oil_bbl"].sum()
+    unit = production.groupby("well_id")["unit"].first()
+    t = pd.DataFrame({"stage": m.set_index("well_id")["final_stage"]}).dropna()
+    t["w"] = rec.reindex(t.index).fillna(0.0)
+    t["unit"] = unit.reindex(t.index)
+    out = {}
+    for u, g in t.groupby("unit"):
+        tot = g["w"].sum()
+        out[u] = next((k for k in (4, 3, 2, 1) if g.loc[g["stage"] >= k, "w"].sum() > 0.5 * tot), np.nan)
+    return pd.Series(out, dtype=float)
+
+
 def measure(n_wells: int, seed: int, *, material_balance_fit: bool = True) -> dict:
     """Run the pipeline on a synthetic field and return the accuracy figures."""
     field = synthetic_field(n_wells, seed=seed)
@@ -64,7 +81,13 @@ def measure(n_wells: int, seed: int, *, material_balance_fit: bool = True) -> di
     bp_err = (_mi(m["bubble_point_date"]) - _mi(m["bubble_point_month"])).abs()
     s2 = m["final_stage"] >= 3
     s2_err = (_mi(m["stage2_end_date"]) - _mi(m["stage2_end_month"])).abs()
+    units = track_units(load.production, wells, load.wells)
+    unit_true = _unit_truth(load.production, m)
+    ut = units.set_index("unit").reindex(unit_true.index)
     return {
+        "units": pd.DataFrame({"true (rule on true well stages)": unit_true,
+                               "unit stage": ut["stage"].astype("float"),
+                               "summed-GOR stage": ut["stage_summed_gor"].astype("float")}),
         "wells": len(m),
         "stage_correct": float((st == m["final_stage"]).mean()),
         "confusion": pd.crosstab(m["final_stage"], m["stage"].astype("float").fillna(0).astype(int),
@@ -147,6 +170,9 @@ def main(argv: list[str] | None = None) -> int:
     print(f"confidence: {r['confidence']}; stage correct by confidence: {r['correct_by_confidence']}")
     print(f"track_wells time: {r['track_seconds']:.2f} s")
     print(r["confusion"].to_string())
+    print("units: stage by the wells' majority-of-recent-oil rule vs the same rule on the true well stages, "
+          "and the summed-volume GOR stage")
+    print(r["units"].to_string())
     return 0
 
 
