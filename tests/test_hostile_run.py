@@ -83,7 +83,7 @@ def _build(d):
         _well("FUTURE", 48 + N_FUTURE, _decline(48 + N_FUTURE)),  # 2021-01 .. 2025-12
     ]
     table = pd.concat([p.astype(object) for p in parts], ignore_index=True)
-    allbad = pd.DataFrame({"well_id": "ALLBAD", "month": ["not a date", "2023-13", "2099-01"]  # 2099: after any clock's month,
+    allbad = pd.DataFrame({"well_id": "ALLBAD", "month": ["not a date", "2023-13", "2099-01"],  # 2099: after any clock's month
                            "oil_bbl": ["abc", "12", "100"], "gas_mcf": ["1", "2", "3"]})
     table = pd.concat([table, allbad.reindex(columns=table.columns).astype(object)], ignore_index=True)
     prod_path = d / "production.csv"
