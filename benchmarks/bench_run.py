@@ -89,7 +89,7 @@ def synthetic_field_csv(path: Path, n_wells: int, *, seed: int = 20261201) -> in
     pressure = np.where(k % 12 == 0, p.round(0), np.nan)
 
     ids = np.char.add("DD-", np.char.zfill(np.arange(1, n_wells + 1).astype(str), 6))
-    units = np.array(["Upper Kestrel", "Lower Kestrel", "Marrow Sand", "Tamsin Dolomite"])
+    units = np.array(["Upper Wrenfold", "Lower Wrenfold", "Marrow Sand", "Tamsin Dolomite"])
     df = pd.DataFrame(
         {
             "well_id": ids[well_idx],

@@ -97,7 +97,7 @@ def test_clean_file_derived_columns_by_hand():
     res = load_production(DATA / "clean_comma.csv", as_of=AS_OF)
     _accounting(res)
     assert res.rows_used == 6 and len(res.report) == 0
-    k = res.production.loc[res.production["well_id"] == "Kestrel 1"].reset_index(drop=True)
+    k = res.production.loc[res.production["well_id"] == "Wrenfold 1"].reset_index(drop=True)
     # hand calculation from rows 2-4 of clean_comma.csv
     assert list(k["days_in_month"]) == [31, 28, 31]  # Gregorian calendar, 2021 not leap
     np.testing.assert_allclose(k["oil_rate_bbl_d"], [3100 / 31, 2800 / 28, 3000 / 31], rtol=1e-14)

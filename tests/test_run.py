@@ -561,12 +561,12 @@ def test_command_monthly_cycle_appends_carries_overrides_and_reports_changes(tmp
     from core.storage import open_store
 
     raw = pd.read_csv(SAMPLE_PROD, dtype=str, keep_default_na=False)
-    sep = tmp_path / "quail_2026-09.csv"
+    sep = tmp_path / "quillmere_2026-09.csv"
     raw[raw["Month"] <= "2026-09"].to_csv(sep, index=False)
-    octo = tmp_path / "quail_2026-10.csv"
+    octo = tmp_path / "quillmere_2026-10.csv"
     raw[raw["Month"] == "2026-10"].to_csv(octo, index=False)  # the new month only
     db = tmp_path / "store"
-    base = ["--wells", str(SAMPLE_HEADER), "--workers", "1", "--db", str(db), "--field-name", "Quail", "--no-xlsx"]
+    base = ["--wells", str(SAMPLE_HEADER), "--workers", "1", "--db", str(db), "--field-name", "Quillmere", "--no-xlsx"]
     out1 = io.StringIO()
     assert main(["forecast", str(sep), "--out", str(tmp_path / "sep"), *base], stdout=out1, stderr=io.StringIO()) == 0
     assert "overrides carried forward: 0" in out1.getvalue()
@@ -574,7 +574,7 @@ def test_command_monthly_cycle_appends_carries_overrides_and_reports_changes(tmp
     # an engineer forces an exponential decline on a hyperbolic well between the two runs
     target = w1.index[(w1["model"] != "exponential") & (w1["status"] == STATUS_OK) & (w1["b"].replace("", "0").astype(float) > 0.3)][0]
     store = open_store(db)
-    store.add_override("Quail", target, "b", 0.0, reason="analogue wells decline exponentially", author="engineer")
+    store.add_override("Quillmere", target, "b", 0.0, reason="analogue wells decline exponentially", author="engineer")
     store.close()
     out2, err2 = io.StringIO(), io.StringIO()
     assert main(["forecast", str(octo), "--out", str(tmp_path / "oct"), *base], stdout=out2, stderr=err2) == 0, err2.getvalue()
@@ -598,7 +598,7 @@ def test_command_monthly_cycle_appends_carries_overrides_and_reports_changes(tmp
     # a restated month is a conflict: reported in load_report.csv, the newer file wins
     restated = raw[raw["Month"] == "2026-10"].copy()
     restated.loc[restated.index[0], "Oil (bbl)"] = str(int(float(restated.iloc[0]["Oil (bbl)"])) + 100)
-    nov = tmp_path / "quail_restated.csv"
+    nov = tmp_path / "quillmere_restated.csv"
     restated.to_csv(nov, index=False)
     out3 = io.StringIO()
     assert main(["forecast", str(nov), "--out", str(tmp_path / "nov"), *base], stdout=out3, stderr=io.StringIO()) == 0

@@ -17,9 +17,9 @@ TEXT_FILES: dict[str, str] = {
     # a clean file with common header spellings; rows 2-7
     "clean_comma.csv": (
         "Well Name,Date,Oil (bbl),Gas (Mcf),Water (bbl),Days On,Avg Reservoir Pressure (psia),Reservoir\n"
-        "Kestrel 1,2021-01-01,3100,1550,31,31,2450,Upper Marl\n"
-        "Kestrel 1,2021-02-01,2800,1400,56,28,,Upper Marl\n"
-        "Kestrel 1,2021-03-01,3000,1500,90,31,,Upper Marl\n"
+        "Wrenfold 1,2021-01-01,3100,1550,31,31,2450,Upper Marl\n"
+        "Wrenfold 1,2021-02-01,2800,1400,56,28,,Upper Marl\n"
+        "Wrenfold 1,2021-03-01,3000,1500,90,31,,Upper Marl\n"
         "Heron 2,2021-01-01,1000,700,0,30,,Lower Marl\n"
         "Heron 2,2021-02-01,950,680,10,28,2210,Lower Marl\n"
         "Heron 2,2021-03-01,900,650,20,31,,Lower Marl\n"
