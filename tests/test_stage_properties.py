@@ -12,6 +12,8 @@ through ``core.production.load_production`` on a DataFrame exactly as a file wou
   and the as-of month; a bubble point crossed before production is dated at the first
   producing month (track_wells docs / module notes: "initial pressure at or below the bubble
   point");
+- the dates follow the stage order (bubble point <= end of stage 2 <= GOR peak); a stage-1
+  well has none, a stage-1 or stage-2 well has no GOR peak date;
 - ``passed_gor_peak`` implies stage 4 (stage 4 is defined as "after the GOR peak");
 - ``track_units`` returns one row per reservoir unit with a stage in 1..4 or NA and a status
   from the same vocabulary.
@@ -123,11 +125,15 @@ def _check(prod: pd.DataFrame, header, mb: bool) -> None:
         if r["passed_gor_peak"]:
             assert r["stage"] == 4, wid
         lo, hi = months.loc[wid, "min"], min(months.loc[wid, "max"], as_of)
-        for c in DATE_COLUMNS:
-            d = r[c]
-            if pd.notna(d):
-                d = pd.Timestamp(d)
-                assert lo <= d <= hi, (wid, c, d, lo, hi)
+        dates = [pd.Timestamp(r[c]) for c in DATE_COLUMNS if pd.notna(r[c])]
+        for d in dates:
+            assert lo <= d <= hi, (wid, d, lo, hi)
+        # the stages follow one another: bubble point <= end of stage 2 <= GOR peak
+        assert dates == sorted(dates), (wid, dates)
+        if pd.notna(r["stage"]) and int(r["stage"]) == 1:  # above the bubble point: no event yet
+            assert not dates, (wid, dates)
+        if pd.notna(r["stage"]) and int(r["stage"]) <= 2:  # the GOR peak ends stage 3
+            assert pd.isna(r["gor_peak_date"]), wid
     units = track_units(tidy, out, load.wells, as_of=AS_OF)
     assert sorted(units["unit"].astype(str)) == sorted(pd.unique(tidy["unit"].astype(str)))
     for _, u in units.iterrows():
