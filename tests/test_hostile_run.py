@@ -5,7 +5,7 @@ solution-gas wells (``core.well_model.synthetic_field`` / ``simulate_well``) bes
 histories break naive decline tools: rates that rise, constant rates, all-zero volumes, a single
 month, one huge spike month in a clean decline, pressure surveys above the initial pressure,
 GOR of zero (gas never metered), GOR of 1e6 scf/STB, rows after the as-of month, and a well
-whose every row is bad. The file goes through both the library path (``run_from_files`` ->
+whose every row is bad, 1e12 bbl/month, micro-barrel rates, volumes with 0 days on. The file goes through both the library path (``run_from_files`` ->
 ``export.write_outputs``) and the batch command (``core.cli.main`` with ``--out``).
 
 Checked for every well (the invariants are definitions, not tuned values):
@@ -36,7 +36,8 @@ from core.well_model import simulate_well, synthetic_field
 AS_OF = "2024-12"
 SPIKE_INDEX = 40  # month of the spike inside the 60-month history of SPIKE
 N_FUTURE = 12  # rows of FUTURE after AS_OF (2025-01 .. 2025-12)
-HOSTILE = ["RISE", "FLAT", "ZERO", "ONE", "PHIGH", "GOR0", "GORHI", "FUTURE", "SPIKE", "SPIKE-BASE"]
+N_HUGE = 6  # rows of HUGE, each above the loader's plausibility bound
+HOSTILE = ["HUGE", "TINY", "DAYS0", "RISE", "FLAT", "ZERO", "ONE", "PHIGH", "GOR0", "GORHI", "FUTURE", "SPIKE", "SPIKE-BASE"]
 BAD_TEXT = {"nan", "-nan", "inf", "-inf", "+inf", "infinity", "-infinity", "+infinity"}
 
 
@@ -81,6 +82,9 @@ def _build(d):
         _well("GOR0", n, _decline(n), gas=0.0),
         _well("GORHI", n, _decline(n), gor=1e6),
         _well("FUTURE", 48 + N_FUTURE, _decline(48 + N_FUTURE)),  # 2021-01 .. 2025-12
+        _well("HUGE", N_HUGE, 1e12 * np.exp(-0.03 * np.arange(N_HUGE))),  # 1e12 bbl/month
+        _well("TINY", n, 1e-6 * np.exp(-0.03 * np.arange(n))),  # micro-barrels
+        _well("DAYS0", n, _decline(n)).assign(days_on=0.0),  # volumes with 0 days on
     ]
     table = pd.concat([p.astype(object) for p in parts], ignore_index=True)
     allbad = pd.DataFrame({"well_id": "ALLBAD", "month": ["not a date", "2023-13", "2099-01"],  # 2099: after any clock's month
@@ -155,7 +159,7 @@ def test_rows_read_equal_rows_used_plus_rejected(hostile):
     assert inp["rows_read"] == inp["rows_used"] + inp["rows_rejected"]
     rep = res.load_report
     rejected = rep[rep["action"] == "rejected"]
-    assert len(rejected) == inp["rows_rejected"] == 3
+    assert len(rejected) == inp["rows_rejected"] == 3 + N_HUGE
     # the all-bad well: each of its rows is reported with its file row and the column at fault
     bad = rejected[rejected["well_id"] == "ALLBAD"]
     assert len(bad) == 3
@@ -200,6 +204,17 @@ def test_documented_outcome_of_each_pathological_well(hostile):
     assert w.loc["GORHI", "fluid_type"] in {"dry_gas", "wet_gas", "gas_condensate"}
     assert pd.isna(w.loc["GORHI", "stage"]) and "not an oil well" in w.loc["GORHI", "stage_reason"]
     assert w.loc["GORHI", "status"] == STATUS_OK and w.loc["GORHI", "eur_gas_mcf"] > w.loc["GORHI", "cum_gas_mcf"]
+    # implausibly large volumes: each row rejected with row and column; the well kept, not forecast
+    huge = rep[(rep["well_id"] == "HUGE") & (rep["action"] == "rejected")]
+    assert len(huge) == N_HUGE and (huge["column"] == "oil_bbl").all() and huge["row"].notna().all()
+    assert "no usable rows" in w.loc["HUGE", "status"]
+    # micro-barrel rates: below the economic limit, said so, EUR = cumulative
+    assert "below the economic limit" in w.loc["TINY", "status"]
+    assert w.loc["TINY", "eur_oil_bbl"] == pytest.approx(w.loc["TINY", "cum_oil_bbl"])
+    # volumes with 0 days on: calendar days used, reported as altered, well forecast
+    d0 = rep[(rep["well_id"] == "DAYS0") & (rep["column"] == "days_on")]
+    assert len(d0) == 36 and (d0["action"] == "altered").all()
+    assert w.loc["DAYS0", "status"] == STATUS_OK and w.loc["DAYS0", "uptime_fraction"] == pytest.approx(1.0)
     # every well not forecast carries a non-empty reason
     assert (w["status"].astype(str).str.len() > 0).all()
 
