@@ -69,12 +69,12 @@ def main(argv: list[str] | None = None) -> int:
         lambda: at.file_uploader(key="upload_production").set_value(("bench_field.csv", data, "text/csv")).run()
     )
     figures["compute (run_field, all wells)"] = timed(lambda: at.button(key="run_forecast").click().run())
-    figures["overview drawn"] = timed(lambda: at.switch_page("pages/overview.py").run())
+    figures["overview drawn"] = timed(lambda: at.switch_page("views/overview.py").run())
     ready = figures["upload to load report"] + figures["compute (run_field, all wells)"] + figures["overview drawn"]
     figures["overview ready after upload (sum)"] = ready
-    figures["overview revisited (cached)"] = timed(lambda: at.switch_page("pages/overview.py").run())
+    figures["overview revisited (cached)"] = timed(lambda: at.switch_page("views/overview.py").run())
 
-    at.switch_page("pages/well.py").run()
+    at.switch_page("views/well.py").run()
     ids = at.selectbox(key="well_pick").options
     switches = []
     for w in ids[1: 1 + args.switches]:
@@ -90,22 +90,22 @@ def main(argv: list[str] | None = None) -> int:
 
     figures["override applied"] = timed(override)
     path = at.session_state["dd_run_path"]
-    figures["override: back to the cached well view"] = timed(lambda: at.switch_page("pages/well.py").run())
+    figures["override: back to the cached well view"] = timed(lambda: at.switch_page("views/well.py").run())
 
     def limit():
-        at.switch_page("pages/settings.py").run()
+        at.switch_page("views/settings.py").run()
         at.number_input(key="set_econ_limit").set_value(2.5)
         at.button(key="FormSubmitter:settings_form-Apply settings").click().run()
-        at.switch_page("pages/overview.py").run()
+        at.switch_page("views/overview.py").run()
 
     figures["economic limit changed, overview redrawn"] = timed(limit)
     limit_path = at.session_state["dd_run_path"]
     if args.samples:
         def prob():
-            at.switch_page("pages/settings.py").run()
+            at.switch_page("views/settings.py").run()
             at.number_input(key="set_samples").set_value(args.samples)
             at.button(key="FormSubmitter:settings_form-Apply settings").click().run()
-            at.switch_page("pages/overview.py").run()
+            at.switch_page("views/overview.py").run()
             at.button(key="prob_compute_overview").click().run()
 
         figures[f"P90/P50/P10 computed ({args.samples} samples)"] = timed(prob)

@@ -22,14 +22,14 @@ st.set_page_config(page_title="Depletion Desk", layout="wide")
 state.init_state()
 
 PAGES = [
-    st.Page("pages/load.py", title="Load data", icon=":material/upload_file:", default=True),
-    st.Page("pages/overview.py", title="Field overview", icon=":material/dashboard:"),
-    st.Page("pages/well.py", title="Well review", icon=":material/show_chart:"),
-    st.Page("pages/planning.py", title="Unit planning", icon=":material/water_drop:"),
-    st.Page("pages/type_wells.py", title="Type wells", icon=":material/stacked_line_chart:"),
-    st.Page("pages/exports.py", title="Downloads", icon=":material/download:"),
-    st.Page("pages/settings.py", title="Settings", icon=":material/tune:"),
-    st.Page("pages/about.py", title="About", icon=":material/info:"),
+    st.Page("views/load.py", title="Load data", icon=":material/upload_file:", default=True),
+    st.Page("views/overview.py", title="Field overview", icon=":material/dashboard:"),
+    st.Page("views/well.py", title="Well review", icon=":material/show_chart:"),
+    st.Page("views/planning.py", title="Unit planning", icon=":material/water_drop:"),
+    st.Page("views/type_wells.py", title="Type wells", icon=":material/stacked_line_chart:"),
+    st.Page("views/exports.py", title="Downloads", icon=":material/download:"),
+    st.Page("views/settings.py", title="Settings", icon=":material/tune:"),
+    st.Page("views/about.py", title="About", icon=":material/info:"),
 ]
 nav = st.navigation(PAGES)
 

@@ -1439,7 +1439,7 @@ def require_run():
     """
     if current_source() is None or not is_confirmed():
         st.info("No forecast yet: load a file (or the sample field) and confirm it on the Load data page.")
-        st.page_link("pages/load.py", label="Go to Load data", icon=":material/upload_file:")
+        st.page_link("views/load.py", label="Go to Load data", icon=":material/upload_file:")
         st.stop()
     run = cached_run()
     if run is not None:

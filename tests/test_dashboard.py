@@ -25,8 +25,8 @@ APP = str(ROOT / "dashboard" / "app.py")
 SAMPLE = ROOT / "sample_wells" / "production.csv"
 HEADER = ROOT / "sample_wells" / "well_header.csv"
 PAGES = [
-    "pages/load.py", "pages/overview.py", "pages/well.py", "pages/planning.py",
-    "pages/exports.py", "pages/settings.py", "pages/about.py",
+    "views/load.py", "views/overview.py", "views/well.py", "views/planning.py",
+    "views/exports.py", "views/settings.py", "views/about.py",
 ]
 APPLY_OVERRIDE = "FormSubmitter:override_form-Apply override"
 APPLY_SETTINGS = "FormSubmitter:settings_form-Apply settings"
@@ -122,7 +122,7 @@ def test_every_page_renders_with_the_sample_field():
         at.switch_page(page).run()
         _ok(at)
     # The caution is shown on the pages with forecasts and planning statuses.
-    for page in ("pages/overview.py", "pages/well.py", "pages/planning.py", "pages/exports.py"):
+    for page in ("views/overview.py", "views/well.py", "views/planning.py", "views/exports.py"):
         at.switch_page(page).run()
         assert any("reserves bookings and field decisions follow local regulations" in c.value for c in at.caption)
 
@@ -142,7 +142,7 @@ def test_load_page_shows_the_loaders_counts(sample_run):
 def test_overview_numbers_equal_core_run(sample_run):
     _, run = sample_run
     at = _app()
-    at.switch_page("pages/overview.py").run()
+    at.switch_page("views/overview.py").run()
     _ok(at)
     assert _metric(at, "Wells") == f"{len(run.wells):,}"
     assert _metric(at, "EUR oil") == _bbl(run.wells["eur_oil_bbl"].sum())
@@ -158,7 +158,7 @@ def test_overview_numbers_equal_core_run(sample_run):
 def test_overview_filter_narrows_the_table(sample_run):
     _, run = sample_run
     at = _app()
-    at.switch_page("pages/overview.py").run()
+    at.switch_page("views/overview.py").run()
     unit = str(run.wells["unit"].iloc[0])
     at.multiselect(key="filter_unit").select(unit).run()
     _ok(at)
@@ -169,11 +169,11 @@ def test_overview_filter_narrows_the_table(sample_run):
 
 def test_settings_change_reruns_with_the_new_limit(limit_run):
     at = _app()
-    at.switch_page("pages/settings.py").run()
+    at.switch_page("views/settings.py").run()
     at.number_input(key="set_econ_limit").set_value(7.5)
     at.button(key=APPLY_SETTINGS).click().run()
     _ok(at)
-    at.switch_page("pages/overview.py").run()
+    at.switch_page("views/overview.py").run()
     _ok(at)
     expected = limit_run
     assert _metric(at, "EUR oil") == _bbl(expected.wells["eur_oil_bbl"].sum())
@@ -185,14 +185,14 @@ def test_kept_run_and_the_change_report_equal_core(sample_run, limit_run):
 
     _, run0 = sample_run
     at = _app()
-    at.switch_page("pages/overview.py").run()
+    at.switch_page("views/overview.py").run()
     at.button(key="save_run").click().run()
     _ok(at)
     assert any("Kept in the store as run" in s.value for s in at.success)
-    at.switch_page("pages/settings.py").run()
+    at.switch_page("views/settings.py").run()
     at.number_input(key="set_econ_limit").set_value(7.5)
     at.button(key=APPLY_SETTINGS).click().run()
-    at.switch_page("pages/overview.py").run()
+    at.switch_page("views/overview.py").run()
     _ok(at)
     s = summarise_changes(compare_runs(run0.wells, limit_run.wells))
     assert _metric(at, "EUR change") == f"{s['eur_change_bbl']:+,.0f} bbl"
@@ -202,14 +202,14 @@ def test_kept_run_and_the_change_report_equal_core(sample_run, limit_run):
 def test_settings_economic_limit_from_prices_equals_core(sample_run):
     load, _ = sample_run
     at = _app()
-    at.switch_page("pages/settings.py").run()
+    at.switch_page("views/settings.py").run()
     at.radio(key="set_mode").set_value("prices and costs")
     at.number_input(key="set_oil_price").set_value(60.0)
     at.number_input(key="set_opex").set_value(2500.0)
     at.number_input(key="set_nri").set_value(0.8)
     at.button(key=APPLY_SETTINGS).click().run()
     _ok(at)
-    at.switch_page("pages/overview.py").run()
+    at.switch_page("views/overview.py").run()
     _ok(at)
     expected = run_field(load, settings=RunSettings(oil_price=60.0, opex_per_month=2500.0, nri=0.8))
     assert _metric(at, "EUR oil") == _bbl(expected.wells["eur_oil_bbl"].sum())
@@ -218,7 +218,7 @@ def test_settings_economic_limit_from_prices_equals_core(sample_run):
 def test_well_page_shows_core_numbers_and_an_override_refits_it(sample_run):
     load, run = sample_run
     at = _app()
-    at.switch_page("pages/well.py").run()
+    at.switch_page("views/well.py").run()
     _ok(at)
     well = at.selectbox(key="well_pick").value
     row = run.wells.set_index("well_id").loc[well]
@@ -256,7 +256,7 @@ def test_well_page_shows_core_numbers_and_an_override_refits_it(sample_run):
 
 def test_override_without_reason_is_refused():
     at = _app()
-    at.switch_page("pages/well.py").run()
+    at.switch_page("views/well.py").run()
     at.checkbox(key="ov_fix_b").check()
     at.button(key=APPLY_OVERRIDE).click().run()
     assert not at.exception
@@ -266,21 +266,21 @@ def test_override_without_reason_is_refused():
 
 def test_overrides_and_flags_survive_a_new_session():
     at = _app()
-    at.switch_page("pages/well.py").run()
+    at.switch_page("views/well.py").run()
     well = at.selectbox(key="well_pick").value
     at.checkbox(key="ov_fix_b").check()
     at.number_input(key="ov_b").set_value(0.3)
     at.text_input(key="ov_reason").input("workover in the window")
     at.button(key=APPLY_OVERRIDE).click().run()
     _ok(at)
-    at.switch_page("pages/planning.py").run()
+    at.switch_page("views/planning.py").run()
     at.text_area(key="flag_note").input("pressure support study")
     at.button(key=ADD_FLAG).click().run()
     _ok(at)
     # A new browser tab is a new session: the store gives back the override and the flag.
     again = _app()
     assert again.session_state["dd_overrides"][well].b == 0.3
-    again.switch_page("pages/planning.py").run()
+    again.switch_page("views/planning.py").run()
     flags = [d.value for d in again.dataframe if "note" in d.value.columns]
     assert flags and "pressure support study" in set(flags[0]["note"])
 
@@ -296,7 +296,7 @@ def test_upload_through_the_page_then_compute(earlier_run):
     assert _metric(at, "Rows read") == f"{len(earlier.splitlines()) - 1:,}"
     at.button(key="run_forecast").click().run()
     _ok(at)
-    at.switch_page("pages/overview.py").run()
+    at.switch_page("views/overview.py").run()
     _ok(at)
     assert _metric(at, "Wells") == f"{len(expected.wells):,}"
     assert _metric(at, "EUR oil") == _bbl(expected.wells["eur_oil_bbl"].sum())
@@ -320,7 +320,7 @@ def test_upload_above_the_limit_is_refused_with_a_message(monkeypatch):
 
 def test_exports_page_offers_the_workbook_and_the_csv_tables():
     at = _app()
-    at.switch_page("pages/exports.py").run()
+    at.switch_page("views/exports.py").run()
     _ok(at)
     labels = {b.proto.label for b in at.get("download_button")}
     assert {"Forecast workbook (XLSX)", "wells.csv", "forecast_monthly.csv", "units.csv", "load_report.csv"} <= labels
@@ -331,7 +331,7 @@ def test_exports_page_offers_the_workbook_and_the_csv_tables():
 def test_planning_page_shows_core_unit_table(sample_run):
     _, run = sample_run
     at = _app()
-    at.switch_page("pages/planning.py").run()
+    at.switch_page("views/planning.py").run()
     _ok(at)
     units = at.dataframe[0].value
     assert list(units["unit"]) == list(run.units["unit"])
@@ -344,7 +344,7 @@ def test_monthly_update_appends_to_the_kept_history_and_reopens(sample_run, earl
     at = _app()
     at.file_uploader(key="upload_production").set_value(("quillmere_2026-09.csv", earlier, "text/csv")).run()
     at.button(key="run_forecast").click().run()
-    at.switch_page("pages/overview.py").run()
+    at.switch_page("views/overview.py").run()
     assert _metric(at, "EUR oil") == _bbl(earlier_run[1].wells["eur_oil_bbl"].sum())
     at.button(key="save_run").click().run()
     _ok(at)
@@ -356,7 +356,7 @@ def test_monthly_update_appends_to_the_kept_history_and_reopens(sample_run, earl
     at.checkbox(key="append_history").check().run()
     _ok(at)
     at.button(key="run_forecast").click().run()
-    at.switch_page("pages/overview.py").run()
+    at.switch_page("views/overview.py").run()
     _ok(at)
     # The appended history is the whole sample again, so the run is core's run of the sample
     # (the production tables are compared first; the sample here has no well-header file).
@@ -396,7 +396,7 @@ def test_an_unusable_store_is_said_once_and_the_app_still_works(tmp_path, monkey
     monkeypatch.setenv("DEPLETION_DESK_DB", str(bad))
     at = _app()
     assert any("cannot be opened" in w.value for w in at.sidebar.warning)
-    at.switch_page("pages/overview.py").run()
+    at.switch_page("views/overview.py").run()
     assert not at.exception
     assert _metric(at, "Wells")
 
@@ -404,7 +404,7 @@ def test_an_unusable_store_is_said_once_and_the_app_still_works(tmp_path, monkey
 def test_fit_window_and_excluded_months_override_equals_core_then_removal(sample_run):
     load, run = sample_run
     at = _app()
-    at.switch_page("pages/well.py").run()
+    at.switch_page("views/well.py").run()
     well = at.selectbox(key="well_pick").value
     months = at.selectbox(key="ov_start").options[1:]  # after "automatic"
     start, excluded = months[len(months) // 3], months[len(months) // 2]
@@ -441,11 +441,11 @@ def test_probabilistic_forecast_is_off_by_default_then_equals_core(sample_run):
     (not sums of percentiles), and the downloads then carry the percentile columns."""
     load, run = sample_run
     at = _app()
-    at.switch_page("pages/overview.py").run()
+    at.switch_page("views/overview.py").run()
     _ok(at)
     assert not [b for b in at.button if b.key == "prob_compute_overview"]  # off by default
     assert any("Probabilistic forecasts (P90/P50/P10) are off" in c.value for c in at.caption)
-    at.switch_page("pages/settings.py").run()
+    at.switch_page("views/settings.py").run()
     # below core's minimum of 20 samples (core.probabilistic): refused with a message, nothing applied
     at.number_input(key="set_samples").set_value(5)
     at.number_input(key="set_econ_limit").set_value(4.0)
@@ -456,7 +456,7 @@ def test_probabilistic_forecast_is_off_by_default_then_equals_core(sample_run):
     at.number_input(key="set_samples").set_value(40)
     at.button(key=APPLY_SETTINGS).click().run()
     _ok(at)
-    at.switch_page("pages/overview.py").run()
+    at.switch_page("views/overview.py").run()
     at.button(key="prob_compute_overview").click().run()
     _ok(at)
     core_run = run_field(load, settings=RunSettings(samples=40, seed=0))
@@ -480,7 +480,7 @@ def test_probabilistic_forecast_is_off_by_default_then_equals_core(sample_run):
     table = _frame_with(at, "well_id").merge(core_run.wells, on="well_id", suffixes=("_shown", "_core"))
     pd.testing.assert_series_equal(table["eur_oil_bbl_p50_shown"], table["eur_oil_bbl_p50_core"], check_names=False)
     # Well page: the well's ranges and the band on its rate chart.
-    at.switch_page("pages/well.py").run()
+    at.switch_page("views/well.py").run()
     _ok(at)
     well = at.selectbox(key="well_pick").value
     w = core_run.wells.set_index("well_id").loc[well]
@@ -503,7 +503,7 @@ def test_probabilistic_forecast_is_off_by_default_then_equals_core(sample_run):
     keep = (high > 0) & (high >= 0.999 * limit)
     assert shown == pytest.approx(np.maximum(want[keep], limit), rel=1e-12)
     # Downloads: the wells table with the percentile columns, as the batch command writes it.
-    at.switch_page("pages/exports.py").run()
+    at.switch_page("views/exports.py").run()
     _ok(at)
     assert any("With the P90/P50/P10 columns" in c.value for c in at.caption)
 
@@ -513,7 +513,7 @@ def test_type_wells_page_equals_core_and_downloads(sample_run):
 
     load, run = sample_run
     at = _app()
-    at.switch_page("pages/type_wells.py").run()
+    at.switch_page("views/type_wells.py").run()
     _ok(at)
     expected = type_wells_by_unit(load.production, align="first_production", min_wells=5, b_max=run.settings.b_max)
     first = list(expected)[0]
@@ -551,7 +551,7 @@ def test_override_goes_through_core_rerun_wells_when_core_has_it(sample_run, mon
 
     monkeypatch.setattr(core.run, "rerun_wells", rerun_wells, raising=False)
     at = _app()
-    at.switch_page("pages/well.py").run()
+    at.switch_page("views/well.py").run()
     well = at.selectbox(key="well_pick").value
     at.checkbox(key="ov_fix_b").check()
     at.number_input(key="ov_b").set_value(0.45)
@@ -583,20 +583,20 @@ def test_forecast_only_setting_goes_through_core_rerun_forecast(sample_run, monk
 
     monkeypatch.setattr(core.run, "rerun_forecast", rerun_forecast, raising=False)
     at = _app()
-    at.switch_page("pages/overview.py").run()
-    at.switch_page("pages/settings.py").run()
+    at.switch_page("views/overview.py").run()
+    at.switch_page("views/settings.py").run()
     at.number_input(key="set_econ_limit").set_value(3.25)
     at.button(key=APPLY_SETTINGS).click().run()
-    at.switch_page("pages/overview.py").run()
+    at.switch_page("views/overview.py").run()
     _ok(at)
     assert len(calls) == 1 and calls[0][1].econ_limit_bopd == 3.25
     expected = run_field(load, settings=RunSettings(econ_limit_bopd=3.25))
     assert _metric(at, "EUR oil") == _bbl(expected.wells["eur_oil_bbl"].sum())
     # b max changes the fits: a full run, not a forecast re-run.
-    at.switch_page("pages/settings.py").run()
+    at.switch_page("views/settings.py").run()
     at.number_input(key="set_b_max").set_value(1.5)
     at.button(key=APPLY_SETTINGS).click().run()
-    at.switch_page("pages/overview.py").run()
+    at.switch_page("views/overview.py").run()
     _ok(at)
     assert len(calls) == 1
     assert at.session_state["dd_run_path"][0] == "full run"

@@ -117,7 +117,7 @@ st.divider()
 if state.is_confirmed():
     state.require_run()
     st.success("The forecast for these data is computed.")
-    st.page_link("pages/overview.py", label="Open the field overview", icon=":material/dashboard:")
+    st.page_link("views/overview.py", label="Open the field overview", icon=":material/dashboard:")
 else:
     # The callback confirms before the rerun, so this run already draws the computed state.
     st.button("Compute the forecast", type="primary", key="run_forecast", on_click=state.confirm_current_load)

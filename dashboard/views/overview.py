@@ -67,7 +67,7 @@ picked = st.dataframe(
 rows = picked.selection.rows if picked is not None else []
 if rows:
     state.select_well(table.iloc[rows[0]]["well_id"])
-    st.switch_page("pages/well.py")
+    st.switch_page("views/well.py")
 
 st.subheader("Keep this run and compare with the last one")
 c1, c2 = st.columns([3, 1])
