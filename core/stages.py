@@ -66,6 +66,9 @@ import pandas as pd
 from scipy.ndimage import median_filter
 from scipy.signal import savgol_filter
 
+from core import pvt
+from core.material_balance import PvtTable, predict_depletion
+from core.relperm import CoreyGasOil
 from core.validation import InputError
 
 __all__ = [
@@ -218,50 +221,33 @@ def _first_true(b: np.ndarray) -> np.ndarray:
     return np.where(has, b.argmax(axis=1), -1)
 
 
-def _standing_bubble_point(rsi, gamma_g, api, t_f):
-    """Bubble point from Rsi via core.pvt (Standing 1947) when available; NaN otherwise."""
-    try:
-        from core import pvt  # noqa: PLC0415  (optional dependency inside the project)
-    except ImportError:
-        return np.full(np.shape(rsi), np.nan)
-    f = getattr(pvt, "bubble_point_standing", None)
-    if f is None:
-        return np.full(np.shape(rsi), np.nan)
-    rsi = np.asarray(rsi, float)
-    out = np.full(rsi.shape, np.nan)
-    ok = np.isfinite(rsi) & np.isfinite(gamma_g) & np.isfinite(api) & np.isfinite(t_f) & (rsi > 0)
-    if ok.any():
+def _pvt_where_defined(func, x, gamma_g, api, t_f):
+    """``func(x, api=, gamma_g=, t_f=)`` where every input is finite and ``x > 0``; NaN elsewhere.
 
+    Correlation range warnings are not repeated per well here: the stage evidence names the
+    source of Rsi and Pb instead.
+    """
+    x = np.asarray(x, float)
+    out = np.full(x.shape, np.nan)
+    ok = np.isfinite(x) & np.isfinite(gamma_g) & np.isfinite(api) & np.isfinite(t_f) & (x > 0)
+    if ok.any():
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")
             try:
-                out[ok] = np.asarray(f(rsi[ok], api=api[ok], gamma_g=gamma_g[ok], t_f=t_f[ok]), float)
+                out[ok] = np.asarray(func(x[ok], api=api[ok], gamma_g=gamma_g[ok], t_f=t_f[ok]), float)
             except (TypeError, ValueError):
                 out[ok] = np.nan
     return out
+
+
+def _standing_bubble_point(rsi, gamma_g, api, t_f):
+    """Bubble point from Rsi by Standing (1947), ``core.pvt.bubble_point_standing``. [psia]"""
+    return _pvt_where_defined(pvt.bubble_point_standing, rsi, gamma_g, api, t_f)
 
 
 def _standing_rs(p, gamma_g, api, t_f):
-    """Solution GOR at ``p`` via core.pvt.rs_standing (Standing 1947); NaN when unavailable."""
-    try:
-        from core import pvt  # noqa: PLC0415
-    except ImportError:
-        return np.full(np.shape(p), np.nan)
-    f = getattr(pvt, "rs_standing", None)
-    if f is None:
-        return np.full(np.shape(p), np.nan)
-    p = np.asarray(p, float)
-    out = np.full(p.shape, np.nan)
-    ok = np.isfinite(p) & np.isfinite(gamma_g) & np.isfinite(api) & np.isfinite(t_f) & (p > 0)
-    if ok.any():
-
-        with warnings.catch_warnings():
-            warnings.simplefilter("ignore")
-            try:
-                out[ok] = np.asarray(f(p[ok], api=api[ok], gamma_g=gamma_g[ok], t_f=t_f[ok]), float)
-            except (TypeError, ValueError):
-                out[ok] = np.nan
-    return out
+    """Solution GOR at ``p`` by Standing (1947), ``core.pvt.rs_standing``. [scf/STB]"""
+    return _pvt_where_defined(pvt.rs_standing, p, gamma_g, api, t_f)
 
 
 # ----------------------------------------------------------------------------------------
@@ -955,8 +941,6 @@ MB_PEAK_CHI2 = 1.0
 @functools.lru_cache(maxsize=64)
 def _mb_pvt(api: float, gamma_g: float, t_f: float, pb: float, pi: float):
     """Standing PVT table of a PVT group (core.material_balance.PvtTable), cached."""
-    from core.material_balance import PvtTable  # noqa: PLC0415
-
     p_ab = max(50.0, 0.04 * pb)
     return PvtTable.from_correlations(api=api, gamma_g=gamma_g, t_f=t_f, pb_psia=pb, p_max_psia=max(pi, pb + 1.0),
                                       p_min_psia=p_ab - 1.0)
@@ -966,8 +950,6 @@ def _mb_pvt(api: float, gamma_g: float, t_f: float, pb: float, pi: float):
 def _mb_curve(api: float, gamma_g: float, t_f: float, pb: float, pi: float,
               sgc: float, swc: float, sorg: float) -> dict:
     """Tarner depletion path of one PVT group and Corey set (core.material_balance), cached."""
-    from core.material_balance import predict_depletion  # noqa: PLC0415
-    from core.relperm import CoreyGasOil  # noqa: PLC0415
 
     pi = max(pi, pb)
     p_ab = max(50.0, 0.04 * pb)
