@@ -1579,6 +1579,13 @@ def units_column_config() -> dict:
         "gor_peak_date": st.column_config.DateColumn("GOR peak", format="YYYY-MM"),
         "months_since_bubble_point": st.column_config.NumberColumn("months since bubble point", format="%.0f"),
         "months_to_gor_peak_est": st.column_config.NumberColumn("est. months to GOR peak", format="%.0f"),
+        **volume_column_config(),
+    }
+
+
+def volume_column_config() -> dict:
+    """Column labels of the oil volume columns shared by the well and unit tables."""
+    return {
         "cum_oil_bbl": st.column_config.NumberColumn("cum oil [bbl]", format="localized"),
         "remaining_oil_bbl": st.column_config.NumberColumn("remaining [bbl]", format="localized"),
         "eur_oil_bbl": st.column_config.NumberColumn("EUR [bbl]", format="localized"),
