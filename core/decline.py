@@ -400,49 +400,84 @@ def _resid_jac(theta: np.ndarray, t: np.ndarray, y: np.ndarray, need_b: bool, ex
     d r/d b = (u/(1 + u) - log(1 + u))/b^2 (series -x^2/2 + 2 b x^3/3 - 3 b^2 x^4/4 in
     x = di t for b < 1e-4, where the difference cancels).
     """
-    di = np.exp(theta[:, 1:2])
-    if exp_only:
-        x = t * di
-        return (y - theta[:, 0:1]) + x, x, None
-    b = np.maximum(theta[:, 2:3], _B_EFF_MIN)
-    inv_b = 1.0 / b
-    u = t * (b * di)
-    lg = np.log1p(u)
-    r = lg * inv_b
-    r += y
-    r -= theta[:, 0:1]
-    v = u + 1.0
-    np.divide(u, v, out=v)  # u/(1 + u)
-    j_u = v * inv_b
-    if not need_b:
-        return r, j_u, None
-    j_b = v - lg
-    j_b *= inv_b * inv_b
-    small = theta[:, 2] < 1e-4
-    if small.any():
-        xs = t[small] * di[small]
-        bxs = xs * theta[small, 2:3]
-        j_b[small] = xs * xs * (-0.5 + bxs * (2.0 / 3.0) - bxs * bxs * 0.75)
+    r, j_u, j_b, s_u, s_b = _resid_jac_scaled(theta, t, y, need_b, exp_only)
+    if s_u is not None:
+        j_u = j_u * s_u
+    if j_b is not None:
+        j_b = j_b * s_b
     return r, j_u, j_b
 
 
-def _normal_eq(w, r, j_u, j_b):
-    """J^T W J (k, 3, 3) and -J^T W r (k, 3) with d r/d ln qi = -1."""
+def _resid_jac_scaled(theta, t, y, need_b, exp_only):
+    """:func:`_resid_jac` with the per-well factors left out of the derivative arrays.
+
+    Returns r, j_u', j_b', s_u, s_b with d r/d ln di = s_u j_u' and d r/d b = s_b j_b'
+    (s_u, s_b of shape (n, 1), or None for 1): the factors 1/b and 1/b^2 are applied to the
+    sums of the normal equations instead of to every month (two passes fewer).
+    """
+    di = np.exp(theta[:, 1:2])
+    if exp_only:
+        x = t * di
+        r = y - theta[:, 0:1]
+        r += x
+        return r, x, None, None, None
+    bt = theta[:, 2:3]
+    b = np.maximum(bt, _B_EFF_MIN)
+    unit_b = not need_b and bool(np.all(bt == 1.0))
+    u = t * (b * di)
+    lg = np.log1p(u)
+    if unit_b:
+        r = lg + y
+        s_u = None
+    else:
+        inv_b = 1.0 / b
+        r = lg * inv_b
+        r += y
+        s_u = inv_b
+    r -= theta[:, 0:1]
+    v = u + 1.0
+    np.divide(u, v, out=v)  # u/(1 + u)
+    if not need_b:
+        return r, v, None, s_u, None
+    np.subtract(v, lg, out=lg)  # u/(1 + u) - log(1 + u)
+    s_b = inv_b * inv_b
+    small = bt[:, 0] < 1e-4
+    if small.any():
+        xs = t[small] * di[small]
+        bxs = xs * bt[small]
+        lg[small] = xs * xs * (-0.5 + bxs * (2.0 / 3.0) - bxs * bxs * 0.75)
+        s_b = np.where(small[:, None], 1.0, s_b)
+    return r, v, lg, s_u, s_b
+
+
+def _normal_eq(w, r, j_u, j_b, s_u=None, s_b=None, A=None, g=None):
+    """J^T W J (k, 3, 3) and -J^T W r (k, 3) with d r/d ln qi = -1.
+
+    ``s_u``, ``s_b`` (k, 1): per-well factors of ``j_u`` and ``j_b`` (see
+    :func:`_resid_jac_scaled`); ``A``, ``g``: output arrays (allocated when None).
+    """
     k = w.shape[0]
-    A = np.zeros((k, 3, 3))
-    g = np.zeros((k, 3))
+    if A is None:
+        A = np.empty((k, 3, 3))
+    if g is None:
+        g = np.empty((k, 3))
+    su = 1.0 if s_u is None else s_u[:, 0]
     wj_u = w * j_u
     A[:, 0, 0] = w.sum(1)
-    A[:, 0, 1] = A[:, 1, 0] = -wj_u.sum(1)
-    A[:, 1, 1] = np.einsum("ij,ij->i", wj_u, j_u)
+    A[:, 0, 1] = A[:, 1, 0] = -wj_u.sum(1) * su
+    A[:, 1, 1] = np.einsum("ij,ij->i", wj_u, j_u) * (su * su)
     g[:, 0] = np.einsum("ij,ij->i", w, r)
-    g[:, 1] = -np.einsum("ij,ij->i", wj_u, r)
+    g[:, 1] = -np.einsum("ij,ij->i", wj_u, r) * su
     if j_b is not None:
+        sb = 1.0 if s_b is None else s_b[:, 0]
         wj_b = w * j_b
-        A[:, 0, 2] = A[:, 2, 0] = -wj_b.sum(1)
-        A[:, 1, 2] = A[:, 2, 1] = np.einsum("ij,ij->i", wj_u, j_b)
-        A[:, 2, 2] = np.einsum("ij,ij->i", wj_b, j_b)
-        g[:, 2] = -np.einsum("ij,ij->i", wj_b, r)
+        A[:, 0, 2] = A[:, 2, 0] = -wj_b.sum(1) * sb
+        A[:, 1, 2] = A[:, 2, 1] = np.einsum("ij,ij->i", wj_u, j_b) * (su * sb)
+        A[:, 2, 2] = np.einsum("ij,ij->i", wj_b, j_b) * (sb * sb)
+        g[:, 2] = -np.einsum("ij,ij->i", wj_b, r) * sb
+    else:
+        A[:, 0, 2] = A[:, 2, 0] = A[:, 1, 2] = A[:, 2, 1] = A[:, 2, 2] = 0.0
+        g[:, 2] = 0.0
     return A, g
 
 
@@ -470,10 +505,10 @@ def _lm_batch(t, y, w0, theta0, free, *, b_max, loss, scale, max_iter, tol):
     n_iter = np.zeros(n, dtype=int)
     cost_all = np.empty(n)
 
-    def evaluate(th, tt, yy, ww):
-        r, j_u, j_b = _resid_jac(th, tt, yy, need_b, exp_only)
+    def evaluate_block(th, tt, yy, ww, wsum, c_out, A_out, g_out):
+        r, j_u, j_b, s_u, s_b = _resid_jac_scaled(th, tt, yy, need_b, exp_only)
         if loss == "linear":
-            c = 0.5 * np.einsum("ij,ij,ij->i", ww, r, r)
+            c_out[:] = 0.5 * np.einsum("ij,ij,ij->i", ww, r, r)
             w = ww
         elif loss == "soft_l1":
             # rho = 2 (sqrt(1 + z) - 1), rho' = 1/sqrt(1 + z), z = (r/s)^2, fused in place
@@ -481,20 +516,34 @@ def _lm_batch(t, y, w0, theta0, free, *, b_max, loss, scale, max_iter, tol):
             sq *= 1.0 / s2
             sq += 1.0
             np.sqrt(sq, out=sq)
-            c = s2 * (np.einsum("ij,ij->i", ww, sq) - ww.sum(1))
+            c_out[:] = s2 * (np.einsum("ij,ij->i", ww, sq) - wsum)
             np.divide(ww, sq, out=sq)
             w = sq
         else:
             rho, drho = _rho((r * r) / s2, loss)
-            c = 0.5 * s2 * np.einsum("ij,ij->i", ww, rho)
+            c_out[:] = 0.5 * s2 * np.einsum("ij,ij->i", ww, rho)
             w = ww * drho
-        A, g = _normal_eq(w, r, j_u, j_b)
+        _normal_eq(w, r, j_u, j_b, s_u, s_b, A_out, g_out)
+
+    def evaluate(th, tt, yy, ww, wsum):
+        # rows in blocks of about _BLOCK_ELEMENTS well-months: the work arrays of a block stay
+        # in the processor cache (about twice as fast as whole-batch passes); every row's
+        # arithmetic is the same whatever the block, so the result does not depend on it
+        k = th.shape[0]
+        c = np.empty(k)
+        A = np.empty((k, 3, 3))
+        g = np.empty((k, 3))
+        rows = max(8, _BLOCK_ELEMENTS // max(m, 1))
+        for i in range(0, k, rows):
+            j = min(i + rows, k)
+            evaluate_block(th[i:j], tt[i:j], yy[i:j], ww[i:j], wsum[i:j], c[i:j], A[i:j], g[i:j])
         return c, A, g
 
     idx = np.arange(n)
     tt, yy, ww = t, y, w0
+    wsum = w0.sum(1)
     th = theta.copy()
-    cost, A, g = evaluate(th, tt, yy, ww)
+    cost, A, g = evaluate(th, tt, yy, ww, wsum)
     lam = np.full(n, LM_LAMBDA0)
     for it in range(max_iter):
         if idx.size == 0:
@@ -517,7 +566,7 @@ def _lm_batch(t, y, w0, theta0, free, *, b_max, loss, scale, max_iter, tol):
         delta = np.where(np.isfinite(delta), delta, 0.0) * f
         cand = np.clip(th + delta, lo, hi)
         cand[:, 0] = np.clip(cand[:, 0], th[:, 0] - _LN_QI_SPAN, th[:, 0] + _LN_QI_SPAN)
-        c_new, A_new, g_new = evaluate(cand, tt, yy, ww)
+        c_new, A_new, g_new = evaluate(cand, tt, yy, ww, wsum)
         was = converged[idx]  # converged earlier but not yet dropped: held still
         ok = np.isfinite(c_new) & (c_new <= cost) & ~was
         step = np.max(np.abs(cand - th), axis=1)
@@ -537,10 +586,10 @@ def _lm_batch(t, y, w0, theta0, free, *, b_max, loss, scale, max_iter, tol):
         if not keep.any():
             break
         # drop converged wells from the batch (copying the rest costs, so not for a few)
-        if (~keep).sum() >= max(1, keep.size // 8):
+        if (~keep).sum() >= max(1, keep.size // 32):
             idx = idx[keep]
             th, cost, A, g, lam = th[keep], cost[keep], A[keep], g[keep], lam[keep]
-            tt, yy, ww = tt[keep], yy[keep], ww[keep]
+            tt, yy, ww, wsum = tt[keep], yy[keep], ww[keep], wsum[keep]
     # final residuals and IRLS weights for every well
     r = _resid(theta, t, y, exp_only)
     drho = _rho((r * r) / s2, loss)[1]
@@ -550,6 +599,9 @@ def _lm_batch(t, y, w0, theta0, free, *, b_max, loss, scale, max_iter, tol):
         cost_all = 0.5 * s2 * np.einsum("ij,ij->i", w0, _rho((r * r) / s2, loss)[0])
     return theta, cost_all, drho, r, n_iter, converged
 
+
+#: Well-months per block of rows evaluated at once in the solver (cache-sized work arrays).
+_BLOCK_ELEMENTS = 16384
 
 #: Starts of the hyperbolic candidate (best kept): from the exponential fit with b = 0.5, from
 #: the harmonic fit with b = 1, and a high-b start (0.9 b_max, 3x the harmonic di).
@@ -922,24 +974,65 @@ def _choose(fams: dict, n_used: np.ndarray, criterion: str, forced: np.ndarray |
 def _fit_chunk(args):
     """Worker: fit the three families for one padded chunk (top level so it pickles).
 
+    ``args`` is (t, y, w0, fixed_b, kw) or (t, y, w0, fixed_b, kw, downweight_below); with
+    the threshold, each family returns ``low_weight`` (final robust weight below it, bool)
+    in place of the float ``weights``, an eighth of the bytes to send back from a worker.
     Floating-point overflow on extreme inputs (e.g. a rate of 1e-313 bbl/d) is silenced
     here: non-finite trial costs are rejected by the solver and non-finite starts replaced.
     """
-    t, y, w0, fixed_b, kw = args
+    t, y, w0, fixed_b, kw = args[:5]
+    below = args[5] if len(args) > 5 else None
     with np.errstate(over="ignore", invalid="ignore", divide="ignore", under="ignore"):
         fams = _fit_families(t, y, w0, fixed_b=fixed_b, **kw)
-    keep = ("theta", "cost", "sse", "wsse", "weights", "n_iter", "converged")
-    return {f: {k: v[k] for k in keep} for f, v in fams.items()}
+    keep = ("theta", "cost", "sse", "wsse", "n_iter", "converged")
+    out = {f: {k: v[k] for k in keep} for f, v in fams.items()}
+    for f, v in fams.items():
+        if below is None:
+            out[f]["weights"] = v["weights"]
+        else:
+            out[f]["low_weight"] = v["weights"] < below
+    return out
+
+
+#: Chunks handed to forked worker processes: set just before the pool starts, so the
+#: workers inherit the arrays instead of receiving them pickled through a pipe.
+_FORK_JOBS: list | None = None
+
+
+def _fit_chunk_inherited(i: int):
+    return _fit_chunk(_FORK_JOBS[i])
 
 
 def _run_chunks(chunks, kw, workers):
-    jobs = [(c["t"], c["y"], c["w"], c["fixed_b"], kw) for c in chunks]
+    """Fit every chunk, in process or in ``workers`` processes; results in chunk order.
+
+    The largest chunks go first (longest-processing-time-first order), so that the last
+    chunks to finish are short and the processes end together. With the ``fork`` start
+    method the workers inherit the chunks (no pickling of the inputs).
+    """
+    global _FORK_JOBS
+    jobs = [(c["t"], c["y"], c["w"], c["fixed_b"], kw) + ((c["downweight_below"],)
+                                                          if "downweight_below" in c else ())
+            for c in chunks]
     if workers <= 1 or len(jobs) <= 1:
         return [_fit_chunk(j) for j in jobs]
+    order = sorted(range(len(jobs)), key=lambda i: -jobs[i][0].size)
     methods = multiprocessing.get_all_start_methods()
-    ctx = multiprocessing.get_context("fork" if "fork" in methods else None)
-    with ProcessPoolExecutor(max_workers=min(workers, len(jobs)), mp_context=ctx) as ex:
-        return list(ex.map(_fit_chunk, jobs))
+    out = [None] * len(jobs)
+    if "fork" in methods:
+        ctx = multiprocessing.get_context("fork")
+        _FORK_JOBS = jobs
+        try:
+            with ProcessPoolExecutor(max_workers=min(workers, len(jobs)), mp_context=ctx) as ex:
+                for i, res in zip(order, ex.map(_fit_chunk_inherited, order)):
+                    out[i] = res
+        finally:
+            _FORK_JOBS = None
+        return out
+    with ProcessPoolExecutor(max_workers=min(workers, len(jobs))) as ex:
+        for i, res in zip(order, ex.map(_fit_chunk, [jobs[i] for i in order])):
+            out[i] = res
+    return out
 
 
 def fit_arps(
@@ -1392,7 +1485,8 @@ def _fit_stream(stream, wells, wcode, mi_all, rate, days_on, uptime, dim, rs_sta
         Y[rr, pr] = np.log(rate[rows])
         W[rr, pr] = 1.0
         MI[rr, pr] = mi_all[rows]
-        chunks.append({"t": T, "y": Y, "w": W, "mi": MI, "wells": wells_c, "fixed_b": fixed_b[wells_c]})
+        chunks.append({"t": T, "y": Y, "w": W, "mi": MI, "wells": wells_c, "fixed_b": fixed_b[wells_c],
+                       "downweight_below": st.downweight_below})
     results = _run_chunks(chunks, kw, workers)
     # ---- gather per well
     theta = {f: np.full((n_wells, 3), np.nan) for f in MODEL_NAMES}
@@ -1417,9 +1511,9 @@ def _fit_stream(stream, wells, wcode, mi_all, rate, days_on, uptime, dim, rs_sta
         for c in chunks:
             wc = c["wells"]
             chc = choice[wc]
-            wts = np.stack([c["res"][f]["weights"] for f in MODEL_NAMES])  # (3, k, m)
-            wsel = wts[chc, np.arange(wc.size)]
-            rr, pp = np.nonzero((wsel < st.downweight_below) & (c["w"] > 0))
+            low = np.stack([c["res"][f]["low_weight"] for f in MODEL_NAMES])  # (3, k, m)
+            lsel = low[chc, np.arange(wc.size)]
+            rr, pp = np.nonzero(lsel & (c["w"] > 0))
             dw_w.append(wc[rr])
             dw_m.append(c["mi"][rr, pp])
     dw_w = np.concatenate(dw_w) if dw_w else np.zeros(0, int)
