@@ -106,7 +106,52 @@ def synthetic_field_csv(path: Path, n_wells: int, *, seed: int = 20261201) -> in
     return total
 
 
-def _child(input_csv: str, out_dir: str, workers: str | None) -> None:
+class _TreeMemory:
+    """Peak of the summed resident memory of this process and all its children (sampled by a
+    thread every 0.1 s through psutil when it is installed), next to ``ru_maxrss``."""
+
+    def __init__(self, interval_s: float = 0.1) -> None:
+        import threading
+
+        self.peak_total = 0.0
+        self.peak_self = 0.0
+        self.peak_children = 0.0
+        self._stop = threading.Event()
+        self._interval = interval_s
+        self._thread = threading.Thread(target=self._run, daemon=True)
+
+    def _run(self) -> None:
+        try:
+            import psutil
+        except ImportError:  # pragma: no cover
+            return
+        me = psutil.Process()
+        while not self._stop.is_set():
+            try:
+                own = me.memory_info().rss
+                kids = 0
+                for c in me.children(recursive=True):
+                    try:
+                        kids += c.memory_info().rss
+                    except psutil.Error:
+                        pass
+            except psutil.Error:
+                own, kids = 0, 0
+            self.peak_self = max(self.peak_self, own / 2**20)
+            self.peak_children = max(self.peak_children, kids / 2**20)
+            self.peak_total = max(self.peak_total, (own + kids) / 2**20)
+            self._stop.wait(self._interval)
+
+    def __enter__(self) -> "_TreeMemory":
+        self._thread.start()
+        return self
+
+    def __exit__(self, *exc) -> None:
+        self._stop.set()
+        self._thread.join()
+
+
+def _child(input_csv: str, out_dir: str, workers: str | None, block_wells: str | None = None) -> None:
     """Run the command in this process, timing each phase; print one JSON line."""
     sys.path.insert(0, str(ROOT))
     import core.export as export_mod
@@ -135,27 +180,55 @@ def _child(input_csv: str, out_dir: str, workers: str | None) -> None:
         return r
 
     run_mod.load_inputs, run_mod.run_field, export_mod.write_outputs = load, run, write
+    import core.streamed as streamed_mod
+
+    orig_stream = streamed_mod.run_streamed
+
+    def stream(*a, **k):
+        r = orig_stream(*a, **k)
+        holder["streamed"] = r
+        return r
+
+    streamed_mod.run_streamed = stream
     argv = ["forecast", input_csv, "--out", out_dir, "--quiet"]
     if workers:
         argv += ["--workers", workers]
+    if block_wells is not None:
+        argv += ["--block-wells", block_wells]
     t0 = time.perf_counter()
-    code = main(argv)
+    with _TreeMemory() as mem:
+        code = main(argv)
     wall = time.perf_counter() - t0
     res = holder.get("result")
-    if res is not None:
+    st = holder.get("streamed")
+    if st is not None:
+        timings = dict(st.timings)
+        n_wells = int(st.summary.get("wells_read", 0))
+        n_fc = int(st.summary.get("wells_forecast", 0))
+        with open(Path(out_dir) / "forecast_monthly.csv", "rb") as fh:
+            n_monthly = sum(buf.count(b"\n") for buf in iter(lambda: fh.read(1 << 24), b"")) - 1
+    elif res is not None:
         for k2, v in res.timings.items():
             timings[k2] = v
+        n_wells, n_fc, n_monthly = int(len(res.wells)), int(res.summary.get("wells_forecast", 0)), int(len(res.monthly))
+    else:
+        n_wells = n_fc = n_monthly = None
     ru_self = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024.0
     ru_children = resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss / 1024.0
     out = {
         "exit_code": code,
         "wall_s": wall,
         "timings_s": timings,
+        "streamed": st is not None,
+        "blocks": None if st is None else st.n_blocks,
         "peak_rss_mib": ru_self,
         "peak_rss_children_mib": ru_children,
-        "wells": None if res is None else int(len(res.wells)),
-        "wells_forecast": None if res is None else int(res.summary.get("wells_forecast", 0)),
-        "monthly_rows": None if res is None else int(len(res.monthly)),
+        "peak_tree_mib": mem.peak_total,
+        "peak_tree_self_mib": mem.peak_self,
+        "peak_tree_children_mib": mem.peak_children,
+        "wells": n_wells,
+        "wells_forecast": n_fc,
+        "monthly_rows": n_monthly,
     }
     print(json.dumps(out))
 
@@ -203,26 +276,38 @@ def main() -> int:
     ap.add_argument("--workers", default=None, help="--workers passed to the command")
     ap.add_argument("--keep", metavar="DIR", help="keep the input and outputs in DIR")
     ap.add_argument("--rerun", action="store_true", help="time the incremental re-runs (one-well override, new economic limit) in this process")
+    ap.add_argument("--block-wells", default=None, metavar="N",
+                    help="--block-wells passed to the command (0 = normal run; default: the command's rule, "
+                         "which streams the 100,000-well file and not the 10,000-well one)")
+    ap.add_argument("--input", metavar="CSV", help="use this production file instead of generating one")
     ap.add_argument("--child", nargs=2, metavar=("INPUT", "OUT"), help=argparse.SUPPRESS)
     args = ap.parse_args()
     if args.child:
-        _child(args.child[0], args.child[1], args.workers)
+        _child(args.child[0], args.child[1], args.workers, args.block_wells)
         return 0
     n = 100_000 if args.large else args.wells
     work = Path(args.keep) if args.keep else Path(tempfile.mkdtemp(prefix="dd_bench_"))
     work.mkdir(parents=True, exist_ok=True)
-    csv_path = work / f"field_{n}.csv"
-    t = time.perf_counter()
-    rows = synthetic_field_csv(csv_path, n)
-    gen = time.perf_counter() - t
-    print(f"generated {n:,} wells, {rows:,} rows, {csv_path.stat().st_size / 2**20:,.0f} MiB in {gen:.1f} s (not timed below)")
-    print(f"machine: {os.cpu_count()} logical cores, load average {os.getloadavg()[0]:.2f} (shared machine: figures vary with load)")
+    if args.input:
+        csv_path = Path(args.input)
+        print(f"input {csv_path} ({csv_path.stat().st_size / 2**20:,.0f} MiB)")
+    else:
+        csv_path = work / f"field_{n}.csv"
+        t = time.perf_counter()
+        rows = synthetic_field_csv(csv_path, n)
+        gen = time.perf_counter() - t
+        print(f"generated {n:,} wells, {rows:,} rows, {csv_path.stat().st_size / 2**20:,.0f} MiB in {gen:.1f} s (not timed below)")
+    la = os.getloadavg()
+    print(f"machine: {os.cpu_count()} logical cores, load average {la[0]:.2f} {la[1]:.2f} {la[2]:.2f} at the start "
+          "(shared machine: figures vary with load)")
     if args.rerun:
         bench_rerun(csv_path, args.workers)
         return 0
     cmd = [sys.executable, str(Path(__file__).resolve()), "--child", str(csv_path), str(work / "out")]
     if args.workers:
         cmd += ["--workers", args.workers]
+    if args.block_wells is not None:
+        cmd += ["--block-wells", str(args.block_wells)]
     proc = subprocess.run(cmd, capture_output=True, text=True, cwd=ROOT)
     lines = [ln for ln in proc.stdout.splitlines() if ln.startswith("{")]
     if proc.returncode != 0 or not lines:
@@ -231,11 +316,18 @@ def main() -> int:
         return 1
     r = json.loads(lines[-1])
     print(f"exit code {r['exit_code']}; wells {r['wells']:,}, forecast {r['wells_forecast']:,}; monthly rows {r['monthly_rows']:,}")
-    for phase in ("load", "fluids", "stages", "fit", "forecast", "units", "assemble", "export"):
+    print("run: " + (f"streamed, {r['blocks']:,} blocks" if r["streamed"] else "normal (one piece)"))
+    for phase in ("split", "load", "fluids", "stages", "fit", "forecast", "units", "assemble", "run", "write",
+                  "export", "xlsx"):
         if phase in r["timings_s"]:
             print(f"  {phase:<10} {r['timings_s'][phase]:8.2f} s")
     print(f"  {'total':<10} {r['wall_s']:8.2f} s  (file to all outputs, in-process CLI)")
-    print(f"peak memory: {r['peak_rss_mib']:,.0f} MiB (command process), {r['peak_rss_children_mib']:,.0f} MiB (largest worker process)")
+    print(f"peak memory (ru_maxrss): {r['peak_rss_mib']:,.0f} MiB command process, "
+          f"{r['peak_rss_children_mib']:,.0f} MiB largest worker process")
+    print(f"peak memory of the process tree (sampled every 0.1 s): {r['peak_tree_mib']:,.0f} MiB in all "
+          f"(process {r['peak_tree_self_mib']:,.0f} MiB, workers {r['peak_tree_children_mib']:,.0f} MiB at most)")
+    la = os.getloadavg()
+    print(f"load average at the end: {la[0]:.2f} {la[1]:.2f} {la[2]:.2f}")
     if not args.keep:
         import shutil
 

@@ -27,6 +27,10 @@ EXIT_OK = 0
 EXIT_INTERNAL = 1
 EXIT_INPUT = 2
 
+#: Defaults of the streamed run (``core.streamed``), repeated here for the help text.
+_DEFAULT_BLOCK_WELLS = 2_500
+_STREAM_MIN_MB = 256
+
 #: Largest input file the command reads by default [MiB] (a batch job reads big files; the
 #: dashboard's upload limit is separate).
 DEFAULT_MAX_FILE_MB = 4096.0
@@ -115,6 +119,11 @@ def build_parser() -> argparse.ArgumentParser:
     i.add_argument("--max-file-mb", type=float, default=DEFAULT_MAX_FILE_MB, metavar="MB", help=f"largest input file accepted [MiB]. Default {DEFAULT_MAX_FILE_MB:g}")
     i.add_argument("--date-order", choices=("dmy", "mdy"), help="day/month order of dates like 03/04/2021 when the data cannot resolve it: dmy (day first) or mdy (month first). Default: resolved from the data, else an input error")
     i.add_argument("--unit-column", metavar="NAME", help="input column holding the reservoir unit. Default: recognised from the header")
+    i.add_argument("--block-wells", type=int, metavar="N", help=(
+        "run streamed by blocks of N wells (memory bounded by the block, not the file; 0 = never stream). "
+        "Default: streamed in blocks of %d wells when INPUT is a CSV file of %d MiB or more, else the normal "
+        "run in one piece. The streamed run gives the same numbers; it does not take --samples, "
+        "--type-wells or --db" % (_DEFAULT_BLOCK_WELLS, _STREAM_MIN_MB)))
 
     s = f.add_argument_group("store and output")
     s.add_argument("--db", metavar="PATH_OR_URL", help="record the run in this store (SQLite file path or database URL); writes changes.csv when it already holds a run of the same field. Default: not recorded")
@@ -299,43 +308,54 @@ def _forecast(args: argparse.Namespace, out: TextIO, err: TextIO) -> int:
             phase = "load"
             from core.run import load_inputs, run_field
 
-            bar(0.0, "reading the production file")
             if not args.max_file_mb > 0:
                 raise InputError(f"--max-file-mb must be positive, got {args.max_file_mb:g}")
-            load = load_inputs(
-                args.input, wells_path=args.wells, settings=settings, sheet=args.sheet,
-                pressure_kind=args.pressure_kind, max_bytes=int(args.max_file_mb * 2**20),
-                dayfirst=None if args.date_order is None else args.date_order == "dmy",
-            )
-            update = None
-            overrides = None
-            if args.db:
-                phase = "store"
-                bar(0.04, "appending to the history held in the store")
-                update = open_update(args.db, load, field_name=args.field_name)
-                load, overrides = update.load, update.overrides
             phase = "run"
-            result = run_field(load, settings=settings, overrides=overrides or None, progress=_scaled(bar, 0.05, 0.85))
-            if update is not None:
-                result.summary.update(update.summary())
-            phase = "export"
-            from core.export import write_outputs
+            streamed = _try_streamed(args, settings, out_dir, bar, err)
+            if streamed is not None:
+                bar.close()
+                result, paths, changes = streamed, dict(streamed.paths), None
+                phase = "done"
 
-            paths = write_outputs(result, out_dir, xlsx=not args.no_xlsx, progress=_scaled(bar, 0.85, 0.97))
-            if args.type_wells:
-                bar(0.96, "building type wells")
-                tw_path, n_tw = write_type_wells(load, result, out_dir)
-                paths[tw_path.name] = tw_path
-                result.summary["type_wells"] = n_tw
-            changes = None
-            if update is not None:
-                phase = "store"
-                bar(0.97, "recording the run in the store")
-                changes = update.save(result, out_dir=out_dir)
-                if changes is not None:
-                    paths[changes.name] = changes
-            bar(1.0, "done")
-            bar.close()
+            if streamed is None:
+                phase = "load"
+                bar(0.0, "reading the production file")
+                if not args.max_file_mb > 0:
+                    raise InputError(f"--max-file-mb must be positive, got {args.max_file_mb:g}")
+                load = load_inputs(
+                    args.input, wells_path=args.wells, settings=settings, sheet=args.sheet,
+                    pressure_kind=args.pressure_kind, max_bytes=int(args.max_file_mb * 2**20),
+                    dayfirst=None if args.date_order is None else args.date_order == "dmy",
+                )
+                update = None
+                overrides = None
+                if args.db:
+                    phase = "store"
+                    bar(0.04, "appending to the history held in the store")
+                    update = open_update(args.db, load, field_name=args.field_name)
+                    load, overrides = update.load, update.overrides
+                phase = "run"
+                result = run_field(load, settings=settings, overrides=overrides or None, progress=_scaled(bar, 0.05, 0.85))
+                if update is not None:
+                    result.summary.update(update.summary())
+                phase = "export"
+                from core.export import write_outputs
+
+                paths = write_outputs(result, out_dir, xlsx=not args.no_xlsx, progress=_scaled(bar, 0.85, 0.97))
+                if args.type_wells:
+                    bar(0.96, "building type wells")
+                    tw_path, n_tw = write_type_wells(load, result, out_dir)
+                    paths[tw_path.name] = tw_path
+                    result.summary["type_wells"] = n_tw
+                changes = None
+                if update is not None:
+                    phase = "store"
+                    bar(0.97, "recording the run in the store")
+                    changes = update.save(result, out_dir=out_dir)
+                    if changes is not None:
+                        paths[changes.name] = changes
+                bar(1.0, "done")
+                bar.close()
         except (InputError, ValueError, OSError) as exc:
             bar.close()
             if isinstance(exc, InputError) or phase in ("options", "load"):
@@ -363,6 +383,38 @@ def _forecast(args: argparse.Namespace, out: TextIO, err: TextIO) -> int:
         out.write(format_summary(result, paths, changes=changes) + "\n")
         out.flush()
     return EXIT_OK
+
+
+def _try_streamed(args: argparse.Namespace, settings: Any, out_dir: Path, bar: ProgressBar, err: TextIO) -> Any:
+    """The streamed run (``core.streamed``) when the rule picks it (``--block-wells``, or a CSV
+    input of ``STREAM_MIN_BYTES`` or more); None for the normal run. A file the streamed run
+    does not read (XLSX, UTF-16, quoted line breaks...) falls back to the normal run with a
+    note on stderr."""
+    from core import streamed as S
+    from core.validation import InputError
+
+    block = S.block_wells_for(args.input, args.block_wells)
+    if block == 0:
+        return None
+    asked = args.block_wells is not None
+    why = f"--block-wells {block}" if asked else f"the input is {S.STREAM_MIN_BYTES // 2**20} MiB or more"
+    for flag, on in (("--samples", bool(args.samples)), ("--type-wells", bool(args.type_wells)), ("--db", bool(args.db))):
+        if on:
+            raise InputError(f"{flag} is not available in the streamed run by blocks of wells (chosen because "
+                             f"{why}); give --block-wells 0 to run the whole file at once")
+    if args.sheet is not None:
+        raise InputError("--sheet reads an XLSX workbook, which the streamed run does not read; give --block-wells 0")
+    try:
+        return S.run_streamed(
+            args.input, out_dir, settings=settings, block_wells=block, wells_path=args.wells,
+            pressure_kind=args.pressure_kind, max_bytes=int(args.max_file_mb * 2**20),
+            dayfirst=None if args.date_order is None else args.date_order == "dmy",
+            xlsx=not args.no_xlsx, progress=bar,
+        )
+    except S.StreamUnsupported as exc:
+        bar.close()
+        err.write(f"note: not streamed ({exc}); running the whole file at once\n")
+        return None
 
 
 def _internal(err: TextIO, exc: BaseException, debug: bool, phase: str) -> int:

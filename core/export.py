@@ -214,23 +214,27 @@ def _csv_chunk_bytes(part: pd.DataFrame, header: bool) -> bytes:
     return buf.getvalue()
 
 
-def csv_chunks(table: pd.DataFrame, *, threads: int = 2):
+def csv_chunks(table: pd.DataFrame, *, threads: int = 2, header: bool = True):
     """Yield the CSV bytes of ``table`` under the export rules, a block of rows at a time.
 
     Numbers are written in their shortest round-trip form by Arrow's writer; text cells are
     quoted. Blocks are formatted by ``threads`` threads (Arrow's writer releases the
     interpreter lock) at most two blocks ahead of the consumer, and yielded in order.
+    ``header=False`` leaves the header line out (rows appended to a file already started,
+    as the streamed run does block by block). Every cell is formatted on its own, so a table
+    written in parts gives the same bytes as written whole.
     """
     from collections import deque
     from concurrent.futures import ThreadPoolExecutor
 
     n = len(table)
     if n == 0:
-        yield _csv_chunk_bytes(prepare_table(table), True)
+        if header:
+            yield _csv_chunk_bytes(prepare_table(table), True)
         return
 
     def block(start: int) -> bytes:
-        return _csv_chunk_bytes(prepare_table(table.iloc[start : start + _CSV_CHUNK_ROWS]), start == 0)
+        return _csv_chunk_bytes(prepare_table(table.iloc[start : start + _CSV_CHUNK_ROWS]), header and start == 0)
 
     starts = list(range(0, n, _CSV_CHUNK_ROWS))
     if threads <= 1 or len(starts) == 1:
@@ -261,6 +265,13 @@ def write_csv(table: pd.DataFrame, target: str | Path | io.IOBase) -> None:
     finally:
         if own:
             fh.close()
+
+
+def append_csv(table: pd.DataFrame, fh: Any, *, header: bool) -> None:
+    """Append ``table``'s rows to the open binary file ``fh`` under the export rules, with
+    the header line only when ``header`` (the first part of a table written in parts)."""
+    for chunk in csv_chunks(table, header=header):
+        fh.write(chunk)
 
 
 def table_to_csv_bytes(table: pd.DataFrame) -> bytes:
@@ -587,12 +598,63 @@ def _sheet_open(*, freeze_header: bool, widths: dict[int, float] | None = None) 
 _SHEET_CLOSE = "</sheetData></worksheet>"
 
 
-def _write_table_sheet(fh: Any, table: pd.DataFrame, *, threads: int = 2) -> None:
+class TableParts:
+    """A table held in parts outside memory (e.g. one file per block of wells), for the
+    workbook writer: ``read()`` yields the parts (DataFrames with ``columns``) in order, one
+    at a time, so a sheet is written without the whole table in memory.
+
+    Parameters
+    ----------
+    columns : list of str
+        Column names, in order.
+    n_rows : int
+        Rows over all parts.
+    read : callable
+        ``read()`` -> iterator of DataFrames.
+    """
+
+    def __init__(self, columns: list[str], n_rows: int, read: Any, start: int = 0, stop: int | None = None) -> None:
+        self.columns = list(columns)
+        self._read = read
+        self._start = int(start)
+        self._stop = int(n_rows) if stop is None else int(stop)
+        self._n = int(n_rows)
+
+    def __len__(self) -> int:
+        return max(0, min(self._stop, self._n) - self._start)
+
+    def window(self, start: int, stop: int) -> "TableParts":
+        """Rows ``start`` to ``stop`` (of this view) as a new view."""
+        a = self._start + int(start)
+        return TableParts(self.columns, self._n, self._read, a, min(self._start + int(stop), self._stop))
+
+    def parts(self):
+        pos = 0
+        for part in self._read():
+            n = len(part)
+            lo, hi = max(self._start - pos, 0), min(self._stop - pos, n)
+            if hi > lo:
+                yield part.iloc[lo:hi].reindex(columns=self.columns)
+            pos += n
+            if pos >= self._stop:
+                break
+
+
+def _write_table_sheet(fh: Any, table: Any, *, threads: int = 2) -> None:
     from collections import deque
     from concurrent.futures import ThreadPoolExecutor
 
     fh.write(_sheet_open(freeze_header=True).encode("utf-8"))
     fh.write(_header_xml([str(c) for c in table.columns]).encode("utf-8"))
+    if isinstance(table, TableParts):  # one part in memory at a time
+        row = 2
+        for part in table.parts():
+            for start in range(0, len(part), _XLSX_BLOCK_ROWS):
+                sub = part.iloc[start : start + _XLSX_BLOCK_ROWS]
+                fh.write(_rows_xml(prepare_table(sub), row))
+                row += len(sub)
+        fh.write(_SHEET_CLOSE.encode("utf-8"))
+        return
 
     def block(start: int) -> bytes:
         return _rows_xml(prepare_table(table.iloc[start : start + _XLSX_BLOCK_ROWS]), start + 2)
@@ -743,6 +805,67 @@ def write_xlsx(
                 split.append((f"{name}_{i}", table.iloc[start : start + cap]))
     _write_workbook(target if not hasattr(target, "write") else target, _cover_rows(result, notes), split)
     return notes
+
+
+def write_xlsx_parts(
+    target: str | Path | io.BytesIO,
+    cover_rows: list[tuple[str, Any]],
+    *,
+    wells: Any,
+    monthly: Any | None,
+    yearly: Any | None,
+    n_monthly: int,
+    n_yearly: int,
+    units: pd.DataFrame,
+    load_report: Any,
+    row_limit: int = XLSX_MAX_ROWS,
+) -> list[str]:
+    """The workbook of :func:`write_xlsx` from tables held in parts (:class:`TableParts`) or
+    in memory: the streamed run's writer. Same sheets, same volume rule: the monthly table
+    when it fits a worksheet, else yearly volumes per well when those fit, else no volume
+    sheet (the cover sheet says which and why). ``monthly``/``yearly`` may be None when
+    they do not fit (the caller stops keeping them past the limit). Returns the notes added
+    to the cover sheet (already in the written workbook).
+    """
+    cap = int(row_limit) - 1
+    notes: list[str] = []
+    if n_monthly <= cap and monthly is not None:
+        volume_sheet = ("forecast_monthly", monthly)
+    elif n_yearly <= cap and yearly is not None:
+        notes.append(
+            f"The monthly table has {n_monthly:,} rows, more than a worksheet holds "
+            f"({cap:,} data rows); sheet 'yearly' carries yearly volumes per well and kind "
+            f"instead. {CSV_FILES['monthly']} carries every month."
+        )
+        volume_sheet = ("yearly", yearly)
+    else:
+        notes.append(
+            f"The monthly table has {n_monthly:,} rows and the yearly table {n_yearly:,}, "
+            f"both more than a worksheet holds ({cap:,} data rows); the workbook carries no "
+            f"volume sheet. {CSV_FILES['monthly']} carries every month."
+        )
+        volume_sheet = None
+    sheets: list[tuple[str, Any]] = [("wells", wells)]
+    if volume_sheet is not None:
+        sheets.append(volume_sheet)
+    sheets += [("units", units), ("load_report", load_report)]
+    split: list[tuple[str, Any]] = []
+    for name, table in sheets:
+        if len(table) <= cap:
+            split.append((name, table))
+        else:  # a table larger than a worksheet goes over numbered sheets
+            for i, start in enumerate(range(0, len(table), cap), start=1):
+                part = (table.window(start, start + cap) if isinstance(table, TableParts)
+                        else table.iloc[start : start + cap])
+                split.append((f"{name}_{i}", part))
+    _write_workbook(target, list(cover_rows) + [("note", n) for n in notes], split)
+    return notes
+
+
+def cover_rows(result: Any, notes: list[str]) -> list[tuple[str, Any]]:
+    """The cover sheet's rows of a run (or of a run-like object with ``version``, ``as_of``,
+    ``summary``, ``settings``, ``inputs``), with ``notes`` at the end."""
+    return _cover_rows(result, notes)
 
 
 def run_to_xlsx_bytes(result: Any, *, wells: Iterable[str] | None = None, row_limit: int = XLSX_MAX_ROWS) -> bytes:

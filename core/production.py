@@ -549,6 +549,87 @@ def _read_csv(raw: bytes, name: str, *, mapping: Mapping[str, str] | None,
     return RawTable(frame, rownum, name, "csv", sha, dec, messages, extra)
 
 
+@dataclass(frozen=True)
+class CsvLayout:
+    """How a delimited production file is laid out, detected once on its first part
+    (:func:`csv_layout`) and applied to every later chunk by the streamed run.
+
+    ``header_line`` is the 0-based line index of the header (lines above it are skipped);
+    ``dtype`` the columns read as text (the loader's rule: every column not mapped to a
+    number); ``encoding`` "utf-8" or "latin-1".
+    """
+
+    delimiter: str
+    header: list
+    header_line: int
+    decimal_comma: bool
+    encoding: str
+    dtype: dict
+    messages: list = field(default_factory=list)
+
+
+def csv_layout(head: bytes, name: str, *, mapping: Mapping[str, str] | None = None,
+               unit_column: str | None = None) -> CsvLayout:
+    """Detect delimiter, header line, columns and decimal mark on the first part of a CSV
+    file, as :func:`load_production` does on the whole file (same helpers, same rules).
+
+    Parameters
+    ----------
+    head : bytes
+        The first part of the file (whole lines; at least the header and the
+        ``HEADER_SCAN_ROWS + 50`` lines the loader sniffs).
+    name : str
+        File name for messages.
+    mapping, unit_column : optional
+        As for :func:`load_production` (they decide which columns are read as text).
+
+    Raises
+    ------
+    InputError
+        The part read holds no table header (the loader's messages).
+    """
+    messages: list[str] = []
+    text, enc = _decode(head, name, messages)
+    head_lines: list[str] = []
+    pos = 0
+    while len(head_lines) < HEADER_SCAN_ROWS + 50 and pos < len(text):
+        j = text.find("\n", pos)
+        j = len(text) if j < 0 else j
+        head_lines.append(text[pos:min(j, pos + MAX_HEADER_BYTES)].rstrip("\r"))
+        pos = j + 1
+    non_blank = [ln for ln in head_lines if ln.strip()]
+    if not non_blank:
+        raise InputError(f"{name}: the file has no text lines (only blanks)")
+    delim = _sniff_delimiter(non_blank)
+    try:
+        sample = list(csv.reader(head_lines, delimiter=delim))
+    except csv.Error as exc:
+        raise InputError(f"{name}: the first lines cannot be read as {delim!r}-delimited text ({exc})") from None
+    hdr = _find_header(sample, mapping)
+    header = _dedupe(sample[hdr]) if sample[hdr] else []
+    if len(header) < 2:
+        raise InputError(f"{name}: no table header found (the first line has {len(header)} column(s) "
+                         f"with delimiter {delim!r})")
+    dec = _decimal_comma(sample[hdr + 1:], delim)
+    text_cols = set(_text_fields_for(mapping, unit_column)(header))
+    dtype = {c: str for c in header if c in text_cols}
+    return CsvLayout(delim, header, hdr, dec, enc, dtype, messages)
+
+
+def sniff_chunk(lines: list[str], delimiter: str) -> tuple[str, bool]:
+    """Delimiter and decimal mark the loader's rules find on a chunk's lines (to check a
+    later chunk against the layout of the file's first part)."""
+    non_blank = [ln for ln in lines if ln.strip()]
+    if not non_blank:
+        return delimiter, False
+    d = _sniff_delimiter(non_blank)
+    try:
+        rows = list(csv.reader(non_blank, delimiter=d))
+    except csv.Error:
+        rows = []
+    return d, _decimal_comma(rows, d)
+
+
 def _read_csv_slow(text: str, name: str, delim: str, header: list[str], hdr: int, dtype: dict, dec: bool,
                    nrows: int | None) -> tuple[pd.DataFrame, pd.DataFrame | None, np.ndarray]:
     """Row-by-row fallback for files with ragged rows (rare path; rows with extra fields rejected)."""
@@ -1282,6 +1363,7 @@ def load_production(
     as_of: Any = None,
     dayfirst: bool | None = None,
     well_header_name: str | None = None,
+    allow_no_rows: bool = False,
 ) -> LoadResult:
     """Load a monthly production file into the tidy monthly table, well header and load report.
 
@@ -1316,6 +1398,15 @@ def load_production(
         Day/month order of dates like 03/04/2021 when the data cannot resolve it.
     well_header_name : str, optional
         Name of the well-header file in messages (when ``well_header`` is bytes).
+    allow_no_rows : bool, optional
+        Return a result with an empty production table (and the full report) instead of
+        raising when every data row is rejected. Default False. The streamed run
+        (:mod:`core.streamed`) loads a file block by block, and one block may hold only bad
+        rows while the file as a whole does not.
+
+    ``source`` may also be a :class:`RawTable` already read (the streamed run reads a file in
+    chunks with the layout detected once on its first part, :func:`csv_layout`): its cells,
+    file row numbers, decimal mark, content hash and reading report are used as given.
 
     Returns
     -------
@@ -1333,7 +1424,10 @@ def load_production(
         raise InputError(f"pressure_kind must be 'average_reservoir' or 'static_bhp', got {pressure_kind!r}")
     as_of_mi = _as_of_month(as_of)
 
-    if isinstance(source, pd.DataFrame):
+    if isinstance(source, RawTable):
+        t = source
+        name = file_name or t.file_name
+    elif isinstance(source, pd.DataFrame):
         name = file_name or "production table"
         frame = source.reset_index(drop=True)
         frame = frame.set_axis(_dedupe([str(c) for c in frame.columns]), axis=1)
@@ -1621,6 +1715,18 @@ def load_production(
                 [f"{int(k)} missing month(s) inside the well's history; not filled (treated as shut in)"
                  for k in agg["n"]])
 
+    if len(prod) == 0 and allow_no_rows:
+        report = rep.frame()
+        empty = {c: pd.Series(dtype=object) for c in PRODUCTION_COLUMNS}
+        production = pd.DataFrame(empty)
+        wells = pd.DataFrame({c: pd.Series(dtype=object if c in ("well_id", "unit") else float)
+                              for c in WELL_COLUMNS})
+        rows_read = n + (int((report["reason"].str.startswith(("truncated last line", "wrong number of fields"))).sum())
+                         if len(report) else 0)
+        return LoadResult(
+            production=production, wells=wells, report=report, mapping=dict(mp), rows_read=int(rows_read),
+            rows_used=0, rows_rejected=int(rows_read), file_name=name, content_sha256=content_sha256,
+            pressure_kind=pressure_kind, messages=messages)
     if len(prod) == 0:
         summary = rep.frame()
         top = summary.loc[summary["action"] == "rejected", "reason"].value_counts().head(3)

@@ -20,7 +20,7 @@ FORECAST_OPTIONS = [
     "--opex-per-month", "--nri", "--wi", "--severance-tax", "--as-of", "--b-max",
     "--terminal-decline", "--horizon-years", "--workers", "--units", "--unit-column", "--db",
     "--field-name", "--no-xlsx", "--progress", "--quiet", "--debug", "--date-order",
-    "--samples", "--seed", "--scheduler", "--type-wells",
+    "--samples", "--seed", "--scheduler", "--type-wells", "--block-wells",
 ]
 
 
@@ -217,3 +217,50 @@ def test_our_warnings_are_summarised_on_stderr(tmp_path, monkeypatch):
     code, out, err = _run(["forecast", str(f), "--out", str(tmp_path / "o")])
     assert code == EXIT_OK and "wells read: 1" in out
     assert "1 warning(s)" in err and "OutOfRangeWarning: api 70" in err and "DeprecationWarning" not in err
+
+
+# --------------------------------------------------------------------------------------------
+# the streamed run by blocks of wells (core.streamed)
+# --------------------------------------------------------------------------------------------
+SAMPLE = "sample_wells/production.csv"
+
+
+def test_block_wells_help_states_the_rule():
+    text = " ".join(build_parser().format_help().split())
+    assert "--block-wells N" in text
+    assert "0 = never stream" in text and "MiB or more" in text
+
+
+def test_large_input_is_streamed_by_the_rule(tmp_path, monkeypatch):
+    import core.streamed as streamed_mod
+
+    monkeypatch.setattr(streamed_mod, "STREAM_MIN_BYTES", 1000)  # the sample file counts as large
+    monkeypatch.setattr(streamed_mod, "DEFAULT_BLOCK_WELLS", 20)
+    code, out, err = _run(["forecast", SAMPLE, "--out", str(tmp_path / "o"), "--no-xlsx"])
+    assert code == EXIT_OK, err
+    assert "streamed run: 3 block(s) of up to 20 wells" in out
+    assert "wells read: 47" in out
+    code, out, err = _run(["forecast", SAMPLE, "--out", str(tmp_path / "p"), "--no-xlsx", "--block-wells", "0"])
+    assert code == EXIT_OK and "streamed run" not in out
+
+
+@pytest.mark.parametrize("extra", [["--samples", "50"], ["--type-wells"], ["--db", "x.sqlite"]])
+def test_streamed_run_refuses_whole_field_options(tmp_path, extra):
+    code, out, err = _run(["forecast", SAMPLE, "--out", str(tmp_path / "o"), "--block-wells", "10", *extra])
+    assert code == EXIT_INPUT
+    assert err.count("\n") == 1 and "--block-wells 0" in err and extra[0] in err
+
+
+def test_negative_block_wells_is_an_input_error(tmp_path):
+    code, out, err = _run(["forecast", SAMPLE, "--out", str(tmp_path / "o"), "--block-wells", "-3"])
+    assert code == EXIT_INPUT and "--block-wells" in err
+
+
+def test_xlsx_input_falls_back_to_the_normal_run(tmp_path):
+    import pandas as pd
+
+    src = tmp_path / "p.xlsx"
+    pd.read_csv(SAMPLE).head(400).to_excel(src, index=False)
+    code, out, err = _run(["forecast", str(src), "--out", str(tmp_path / "o"), "--no-xlsx", "--block-wells", "5"])
+    assert code == EXIT_OK, err
+    assert "not streamed (an XLSX workbook is read whole)" in err
