@@ -481,6 +481,38 @@ def _normal_eq(w, r, j_u, j_b, s_u=None, s_b=None, A=None, g=None):
     return A, g
 
 
+_EPS_CURV = np.finfo(float).eps  # floor of a curvature weight (scipy.optimize.least_squares)
+
+
+def _normal_eq_robust(w_g, w_h, r, j_u, j_b, s_u=None, s_b=None, A=None, g=None):
+    """:func:`_normal_eq` with separate weights: ``w_h`` for J^T W J (the loss curvature),
+    ``w_g`` for the gradient -J^T W r (the loss slope)."""
+    k = w_g.shape[0]
+    if A is None:
+        A = np.empty((k, 3, 3))
+    if g is None:
+        g = np.empty((k, 3))
+    su = 1.0 if s_u is None else s_u[:, 0]
+    wr = w_g * r
+    g[:, 0] = wr.sum(1)
+    g[:, 1] = -np.einsum("ij,ij->i", wr, j_u) * su
+    wj_u = w_h * j_u
+    A[:, 0, 0] = w_h.sum(1)
+    A[:, 0, 1] = A[:, 1, 0] = -wj_u.sum(1) * su
+    A[:, 1, 1] = np.einsum("ij,ij->i", wj_u, j_u) * (su * su)
+    if j_b is not None:
+        sb = 1.0 if s_b is None else s_b[:, 0]
+        g[:, 2] = -np.einsum("ij,ij->i", wr, j_b) * sb
+        wj_b = w_h * j_b
+        A[:, 0, 2] = A[:, 2, 0] = -wj_b.sum(1) * sb
+        A[:, 1, 2] = A[:, 2, 1] = np.einsum("ij,ij->i", wj_u, j_b) * (su * sb)
+        A[:, 2, 2] = np.einsum("ij,ij->i", wj_b, j_b) * (sb * sb)
+    else:
+        A[:, 0, 2] = A[:, 2, 0] = A[:, 1, 2] = A[:, 2, 1] = A[:, 2, 2] = 0.0
+        g[:, 2] = 0.0
+    return A, g
+
+
 def _lm_batch(t, y, w0, theta0, free, *, b_max, loss, scale, max_iter, tol):
     """Batched projected Levenberg-Marquardt with IRLS robust weights.
 
@@ -501,6 +533,11 @@ def _lm_batch(t, y, w0, theta0, free, *, b_max, loss, scale, max_iter, tol):
     exp_only = bool(np.all(~free[:, 2]) and np.all(theta[:, 2] == 0.0))
     need_b = bool(free[:, 2].any())
     fr_all = free.astype(float)
+    # the robust loss's curvature term in J^T W J for the exponential family (log-rate
+    # linear in ln qi, nearly so in ln di): about half the iterations of plain IRLS weights,
+    # measured; the harmonic and hyperbolic families keep the IRLS weights, which converged
+    # in fewer iterations and never to a worse cost on the benchmark wells
+    curvature = exp_only
     converged = np.zeros(n, dtype=bool)
     n_iter = np.zeros(n, dtype=int)
     cost_all = np.empty(n)
@@ -511,18 +548,32 @@ def _lm_batch(t, y, w0, theta0, free, *, b_max, loss, scale, max_iter, tol):
             c_out[:] = 0.5 * np.einsum("ij,ij,ij->i", ww, r, r)
             w = ww
         elif loss == "soft_l1":
-            # rho = 2 (sqrt(1 + z) - 1), rho' = 1/sqrt(1 + z), z = (r/s)^2, fused in place
-            sq = r * r
-            sq *= 1.0 / s2
-            sq += 1.0
-            np.sqrt(sq, out=sq)
+            # rho = 2 (sqrt(1 + z) - 1), rho' = 1/sqrt(1 + z), rho'' = -(1 + z)^(-3/2)/2,
+            # z = (r/s)^2; gradient weight rho', curvature weight rho' + 2 rho'' z =
+            # (1 + z)^(-3/2) (second-order correction of the robust loss, Triggs et al. 2000,
+            # as scipy.optimize.least_squares applies it); fused in place
+            z1 = r * r
+            z1 *= 1.0 / s2
+            z1 += 1.0
+            sq = np.sqrt(z1)
             c_out[:] = s2 * (np.einsum("ij,ij->i", ww, sq) - wsum)
             np.divide(ww, sq, out=sq)
             w = sq
+            if curvature:
+                np.divide(w, z1, out=z1)
+                _normal_eq_robust(w, z1, r, j_u, j_b, s_u, s_b, A_out, g_out)
+                return
         else:
-            rho, drho = _rho((r * r) / s2, loss)
+            z = (r * r) / s2
+            rho, drho = _rho(z, loss)
             c_out[:] = 0.5 * s2 * np.einsum("ij,ij->i", ww, rho)
             w = ww * drho
+            if loss == "huber" and curvature:
+                # curvature weight rho' + 2 rho'' z: 1 inside the scale, 0 beyond (floored
+                # as scipy.optimize.least_squares does)
+                w_h = ww * np.where(z > 1.0, _EPS_CURV, 1.0)
+                _normal_eq_robust(w, w_h, r, j_u, j_b, s_u, s_b, A_out, g_out)
+                return
         _normal_eq(w, r, j_u, j_b, s_u, s_b, A_out, g_out)
 
     def evaluate(th, tt, yy, ww, wsum):

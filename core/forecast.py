@@ -36,6 +36,7 @@ from core.decline import (
     DAYS_PER_YEAR,
     DeclineSettings,
     FieldFit,
+    _TINY,
     _cum_unchecked,
     _log1p_over,
     _mh_cum_unchecked,
@@ -334,6 +335,9 @@ def _monthly_rows(wells, n_w, n_k, start_mi, start_day, end_day, uptime, cum_oil
 
         Np is evaluated once per month end; a month's volume is the difference with the
         previous month end (the forecast start for the first month): exact integrals.
+        Each month end is evaluated on its own branch only (hyperbolic before the switch to
+        the terminal decline, exponential tail after), with the per-well factors gathered
+        once per branch.
         """
         if N == 0 or not okm[rep].any():
             return np.zeros(N), np.zeros(N)
@@ -344,20 +348,54 @@ def _monthly_rows(wells, n_w, n_k, start_mi, start_day, end_day, uptime, cum_oil
         np_sw = _cum_unchecked(t_sw_f, qi, di, b)
         tst = np.maximum((start_day - fsd) / DAYS_PER_YEAR, 0.0)
         np_st = _mh_cum_unchecked(tst, qi, di, b, dl)
-        r = rep
-        th = np.maximum((hi_day - fsd[r]) / DAYS_PER_YEAR, tst[r])
-        hyp = _cum_unchecked(th, qi[r], di[r], b[r])
-        dt = np.maximum(th - t_sw_f[r], 0.0)
-        dlr = dl[r]
-        tail = np_sw[r] + q_sw[r] * (-np.expm1(-dlr * dt)) / dlr * DAYS_PER_YEAR
-        np_hi = np.where(th <= t_sw[r], hyp, tail)
-        np_lo = np.empty(N)
+        # per-well factors of Np_hyp(t) = qi/di (exp(c L) - 1)/c, L = log(1 + b di t)/b,
+        # c = b - 1 (Arps 1945), with the same b = 0 and c = 0 devices as core.decline
+        b_eff = np.where(np.abs(b) < _TINY, _TINY, b)
+        c = -(1.0 - b)
+        c_eff = np.where(np.abs(c) < _TINY, _TINY, c)
+        f_u = b_eff * di
+        f_l = c_eff / b_eff
+        f_np = qi / di / c_eff * DAYS_PER_YEAR
+        f_tail = q_sw / dl * DAYS_PER_YEAR
+        rows = np.flatnonzero(wsel[rep])
+        r = rep[rows]
+        th = (hi_day[rows] - fsd[r]) / DAYS_PER_YEAR
+        np.maximum(th, tst[r], out=th)
+        np_hi = np.empty(rows.size)
+        on_h = th <= t_sw[r]
+        h = np.flatnonzero(on_h)
+        rh = r[h]
+        x = th[h] * f_u[rh]
+        np.log1p(x, out=x)
+        x *= f_l[rh]
+        np.expm1(x, out=x)
+        x *= f_np[rh]
+        np_hi[h] = x
+        tl = np.flatnonzero(~on_h)
+        rt = r[tl]
+        y = th[tl] - t_sw_f[rt]
+        y *= -dl[rt]
+        np.expm1(y, out=y)
+        y *= -f_tail[rt]
+        y += np_sw[rt]
+        np_hi[tl] = y
+        del x, y, h, rh, tl, rt, on_h, th
+        np_lo = np.empty(rows.size)
         np_lo[1:] = np_hi[:-1]
-        np_lo[first_row] = np_st[r[first_row]]
-        vol = np.maximum(np_hi - np_lo, 0.0) * up
-        since = np.maximum(np_hi - np_st[r], 0.0) * up
-        okr = wsel[r]
-        return np.where(okr, vol, 0.0), np.where(okr, since, 0.0)
+        fr = first_row[rows]
+        np_lo[fr] = np_st[r[fr]]
+        upr = up[rows]
+        vol = np.zeros(N)
+        since = np.zeros(N)
+        np.subtract(np_hi, np_lo, out=np_lo)
+        np.maximum(np_lo, 0.0, out=np_lo)
+        np_lo *= upr
+        vol[rows] = np_lo
+        np_hi -= np_st[r]
+        np.maximum(np_hi, 0.0, out=np_hi)
+        np_hi *= upr
+        since[rows] = np_hi
+        return vol, since
 
     oil_v, oil_since = stream_volumes(*oil_p)
     gas_v, gas_since = stream_volumes(*gas_p)
@@ -372,7 +410,7 @@ def _monthly_rows(wells, n_w, n_k, start_mi, start_day, end_day, uptime, cum_oil
     gas_since = np.where(np.isfinite(gas_since), gas_since, 0.0)
     monthly = pd.DataFrame({
         "well_id": pd.array(wells.to_numpy(), dtype="str").take(rep),
-        "month": m_mi.astype("datetime64[M]").astype("datetime64[ns]"),
+        "month": (day_lo * 86_400_000_000_000).view("datetime64[ns]"),
         "kind": "forecast",
         "oil_bbl": oil_v,
         "gas_mcf": gas_v,
