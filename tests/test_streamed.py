@@ -83,14 +83,14 @@ def _compare_dirs(normal: Path, stream: Path) -> None:
 
 def test_sample_field_streamed_equals_normal(tmp_path: Path) -> None:
     outs = {}
-    for label, extra in (("normal", ["--block-wells", "0"]), ("streamed", ["--block-wells", "7"])):
+    for label, extra in (("normal", ["--block-wells", "0"]), ("streamed", ["--block-wells", "12"])):
         out = io.StringIO()
         code = main(["forecast", str(SAMPLE), "--wells", str(HEADER), "--out", str(tmp_path / label), *extra],
                     stdout=out, stderr=io.StringIO())
         assert code == 0
         outs[label] = out.getvalue()
     _compare_dirs(tmp_path / "normal", tmp_path / "streamed")
-    assert "streamed run: 7 block(s)" in outs["streamed"]
+    assert "streamed run: 4 block(s)" in outs["streamed"]
     # the summary lines (counts and totals) are the same
     keep = [ln for ln in outs["normal"].splitlines() if ln.startswith(("rows read", "wells", "total EUR", "economic"))]
     for ln in keep:
@@ -101,13 +101,13 @@ def test_sample_field_streamed_equals_normal(tmp_path: Path) -> None:
 
 
 def _synthetic_csv(path: Path, *, ragged: bool, seed: int = 7) -> None:
-    """40 oil wells in 3 units (Arps hyperbolic oil, GOR rising then falling, water), 30-60
+    """16 oil wells in 3 units (Arps hyperbolic oil, GOR rising then falling, water), 30-60
     months each, written month by month (a well's rows spread over the whole file), with bad
     rows of every kind the loader reports and a run of 9 wells whose every row is bad."""
     rng = np.random.default_rng(seed)
     rows = []
     units = ["North Lobe", "South Lobe", "Keel Sand"]
-    for w in range(40):
+    for w in range(16):
         n = int(rng.integers(30, 61))
         qi, di, b = rng.uniform(80, 400), rng.uniform(0.3, 1.2), rng.uniform(0.2, 1.0)
         rsi = rng.uniform(400, 900)
@@ -141,7 +141,7 @@ def _synthetic_csv(path: Path, *, ragged: bool, seed: int = 7) -> None:
         df = pd.concat([df, pd.DataFrame([full])], ignore_index=True)
     dup = df[df["well_id"] == "TW-010"].iloc[[5]]
     conflict = df[df["well_id"] == "TW-011"].iloc[[7]].assign(oil_bbl="1.0")
-    df = pd.concat([df.iloc[:300], dup, df.iloc[300:900], conflict, df.iloc[900:]], ignore_index=True)
+    df = pd.concat([df.iloc[:200], dup, df.iloc[200:500], conflict, df.iloc[500:]], ignore_index=True)
     text = df.to_csv(index=False, lineterminator="\n")
     if ragged:  # a row with extra fields: the loader reads such a file row by row
         lines = text.split("\n")
@@ -159,7 +159,7 @@ def test_synthetic_multiunit_bad_rows_blocks_of_7(tmp_path: Path, ragged: bool) 
     write_outputs(normal, tmp_path / "normal", xlsx=False)
     res = streamed.run_streamed(src, tmp_path / "streamed", settings=s, block_wells=7, xlsx=False,
                                 chunk_bytes=4096)  # many chunks: lines of one well in many of them
-    assert res.n_blocks >= 7
+    assert res.n_blocks >= 4
     _compare_dirs(tmp_path / "normal", tmp_path / "streamed")
     # the load report stays complete: rows read = used + rejected, over all blocks
     for k in ("rows_read", "rows_used", "rows_rejected"):
@@ -189,23 +189,43 @@ def test_later_chunk_that_sniffs_differently_is_reported(tmp_path: Path) -> None
     assert res.inputs["rows_read"] == 120
 
 
-@pytest.mark.parametrize("limit, sheet, note", [(5000, "yearly", "sheet 'yearly' carries yearly volumes"),
-                                                (60, None, "the workbook carries no volume sheet")])
-def test_workbook_volume_sheet_rule(tmp_path: Path, limit: int, sheet: str | None, note: str) -> None:
+def _small_field(path: Path) -> None:
+    lines = ["well_id,month,unit,oil_bbl,gas_mcf"]
+    for w in range(4):
+        for k in range(30):
+            lines.append(f"W{w},{2020 + k // 12}-{k % 12 + 1:02d},U{w % 2},{3000 * 0.97 ** k:.1f},{2000 * 0.97 ** k:.1f}")
+    path.write_text("\n".join(lines) + "\n")
+
+
+def test_workbook_volume_sheet_rule(tmp_path: Path) -> None:
+    """Monthly rows over the sheet limit: yearly volumes; yearly over it too: no volume sheet,
+    said on the cover sheet; a table over the limit goes over numbered sheets."""
     import openpyxl
 
-    res = streamed.run_streamed(SAMPLE, tmp_path / "out", settings=RunSettings(), block_wells=10,
-                                wells_path=HEADER, row_limit=limit)
-    wb = openpyxl.load_workbook(tmp_path / "out" / "forecast.xlsx", read_only=True)
-    names = wb.sheetnames
-    assert "forecast_monthly" not in names
-    assert ("yearly" in names) == (sheet == "yearly")
-    cover = [str(r[1]) for r in wb["cover"].iter_rows(values_only=True) if r[0] == "note"]
-    assert any(note in c for c in cover)
-    # the wells table is split over numbered sheets of at most limit - 1 rows when it must be
-    n_wells = sum(1 for _ in open(tmp_path / "out" / "wells.csv")) - 1
-    rows = sum(sum(1 for _ in wb[n].iter_rows()) - 1 for n in names if n.startswith("wells"))
-    assert rows == n_wells == res.summary["wells_read"]
+    from core.export import yearly_volumes
+
+    src = tmp_path / "small.csv"
+    _small_field(src)
+    streamed.run_streamed(src, tmp_path / "csv", settings=RunSettings(), block_wells=2, xlsx=False)
+    m = pd.read_csv(tmp_path / "csv" / "forecast_monthly.csv", parse_dates=["month"])
+    n_m, n_y = len(m), len(yearly_volumes(m))
+    assert n_y + 1 < n_m
+    for limit, yearly_sheet, note in ((n_y + 1, True, "sheet 'yearly' carries yearly volumes"),
+                                      (3, False, "the workbook carries no volume sheet")):
+        out = tmp_path / f"x{limit}"
+        res = streamed.run_streamed(src, out, settings=RunSettings(), block_wells=2, row_limit=limit)
+        wb = openpyxl.load_workbook(out / "forecast.xlsx", read_only=True)
+        names = wb.sheetnames
+        assert "forecast_monthly" not in names
+        assert ("yearly" in names) == yearly_sheet
+        cover = [str(r[1]) for r in wb["cover"].iter_rows(values_only=True) if r[0] == "note"]
+        assert any(note in c for c in cover), cover
+        rows = sum(sum(1 for _ in wb[n].iter_rows()) - 1 for n in names if n.startswith("wells"))
+        assert rows == res.summary["wells_read"] == 4
+        if limit == 3:  # 2 data rows per sheet: wells_1, wells_2
+            assert {"wells_1", "wells_2"} <= set(names)
+        if yearly_sheet:
+            assert sum(1 for _ in wb["yearly"].iter_rows()) - 1 == n_y
 
 
 def test_block_rule(tmp_path: Path) -> None:
