@@ -540,7 +540,6 @@ def _lm_batch(t, y, w0, theta0, free, *, b_max, loss, scale, max_iter, tol):
     curvature = exp_only
     converged = np.zeros(n, dtype=bool)
     n_iter = np.zeros(n, dtype=int)
-    cost_all = np.empty(n)
 
     def evaluate_block(th, tt, yy, ww, wsum, c_out, A_out, g_out):
         r, j_u, j_b, s_u, s_b = _resid_jac_scaled(th, tt, yy, need_b, exp_only)
@@ -594,13 +593,16 @@ def _lm_batch(t, y, w0, theta0, free, *, b_max, loss, scale, max_iter, tol):
     tt, yy, ww = t, y, w0
     wsum = w0.sum(1)
     th = theta.copy()
+    fr = fr_all
     cost, A, g = evaluate(th, tt, yy, ww, wsum)
     lam = np.full(n, LM_LAMBDA0)
+    conv = np.zeros(n, dtype=bool)  # of the wells still in the batch
+    nit = np.zeros(n, dtype=int)
     for it in range(max_iter):
         if idx.size == 0:
             break
         # active set: parameters held fixed, or at a bound with descent pointing outward
-        f = fr_all[idx].copy()
+        f = fr.copy()
         at_lo = (th[:, 1:] <= lo[1:]) & (g[:, 1:] < 0.0)
         at_hi = (th[:, 1:] >= hi[1:]) & (g[:, 1:] > 0.0)
         f[:, 1:][at_lo | at_hi] = 0.0
@@ -618,7 +620,7 @@ def _lm_batch(t, y, w0, theta0, free, *, b_max, loss, scale, max_iter, tol):
         cand = np.clip(th + delta, lo, hi)
         cand[:, 0] = np.clip(cand[:, 0], th[:, 0] - _LN_QI_SPAN, th[:, 0] + _LN_QI_SPAN)
         c_new, A_new, g_new = evaluate(cand, tt, yy, ww, wsum)
-        was = converged[idx]  # converged earlier but not yet dropped: held still
+        was = conv  # converged earlier but not yet dropped: held still
         ok = np.isfinite(c_new) & (c_new <= cost) & ~was
         step = np.max(np.abs(cand - th), axis=1)
         step_small = step <= 1e-10 * (1.0 + np.max(np.abs(th), axis=1))
@@ -629,25 +631,33 @@ def _lm_batch(t, y, w0, theta0, free, *, b_max, loss, scale, max_iter, tol):
         A[ok] = A_new[ok]
         g[ok] = g_new[ok]
         lam = np.where(ok, np.maximum(lam * 0.2, 1e-12), lam * 8.0)
-        theta[idx] = th
-        cost_all[idx] = cost
-        n_iter[idx[~was]] = it + 1
-        converged[idx[done & ~was]] = True
-        keep = ~converged[idx]
+        nit = np.where(was, nit, it + 1)
+        conv = was | done
+        keep = ~conv
         if not keep.any():
             break
         # drop converged wells from the batch (copying the rest costs, so not for a few)
         if (~keep).sum() >= max(1, keep.size // 32):
+            gone = idx[conv]
+            theta[gone] = th[conv]
+            n_iter[gone] = nit[conv]
+            converged[gone] = True
             idx = idx[keep]
-            th, cost, A, g, lam = th[keep], cost[keep], A[keep], g[keep], lam[keep]
+            th, cost, A, g, lam, fr, nit = th[keep], cost[keep], A[keep], g[keep], lam[keep], fr[keep], nit[keep]
+            conv = conv[keep]
             tt, yy, ww, wsum = tt[keep], yy[keep], ww[keep], wsum[keep]
+    if idx.size:
+        theta[idx] = th
+        n_iter[idx] = nit
+        converged[idx] = conv
     # final residuals and IRLS weights for every well
     r = _resid(theta, t, y, exp_only)
-    drho = _rho((r * r) / s2, loss)[1]
+    rho, drho = _rho((r * r) / s2, loss)
     if loss == "linear":
         cost_all = 0.5 * np.einsum("ij,ij,ij->i", w0, r, r)
     else:
-        cost_all = 0.5 * s2 * np.einsum("ij,ij->i", w0, _rho((r * r) / s2, loss)[0])
+        cost_all = 0.5 * s2 * np.einsum("ij,ij->i", w0, rho)
+    del rho
     return theta, cost_all, drho, r, n_iter, converged
 
 
@@ -838,7 +848,9 @@ class DeclineSettings:
     tol : float
         Relative cost change at convergence. Default 1e-8 (as scipy's least_squares ftol).
     chunk_wells : int
-        Wells per batch (memory per batch ~ chunk x months x 100 bytes). Default 4096.
+        Wells per batch (memory per batch ~ chunk x months x 100 bytes). Default 1024: the
+        wells of a batch are padded to its longest fit window (wells sorted by length, so a
+        smaller batch pads less); the solver works through a batch in cache-sized blocks.
     block_wells : int
         Wells prepared at a time (bounds the per-row work arrays). Default 10,000.
     """
@@ -864,7 +876,7 @@ class DeclineSettings:
     workers: int | None = None
     max_iter: int = 100
     tol: float = 1e-8
-    chunk_wells: int = 4096
+    chunk_wells: int = 1024
     block_wells: int = 10_000
 
     def __post_init__(self) -> None:
