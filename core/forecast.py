@@ -322,9 +322,9 @@ def _monthly_rows(wells, n_w, n_k, start_mi, start_day, end_day, uptime, cum_oil
     k = np.arange(N) - offs[rep]
     m_mi = start_mi[rep] + k
     day_lo = _mi_to_day(m_mi)
-    day_hi = _mi_to_day(m_mi + 1)
-    hi_day = np.minimum(day_hi.astype(float), end_day[rep])
-    days_m = day_hi - day_lo
+    days_m = _mi_to_day(m_mi + 1)
+    days_m -= day_lo  # days in each month
+    hi_day = np.minimum(day_lo + days_m.astype(float), end_day[rep])
     up = uptime[rep]
 
     first_row = np.zeros(N, dtype=bool)
@@ -357,11 +357,17 @@ def _monthly_rows(wells, n_w, n_k, start_mi, start_day, end_day, uptime, cum_oil
         f_l = c_eff / b_eff
         f_np = qi / di / c_eff * DAYS_PER_YEAR
         f_tail = q_sw / dl * DAYS_PER_YEAR
-        rows = np.flatnonzero(wsel[rep])
-        r = rep[rows]
+        sel = wsel[rep]
+        if sel.all():  # every row (the usual case): no gather of the row arrays
+            rows, r = slice(None), rep
+        else:
+            rows = np.flatnonzero(sel)
+            r = rep[rows]
+        del sel
         th = (hi_day[rows] - fsd[r]) / DAYS_PER_YEAR
         np.maximum(th, tst[r], out=th)
-        np_hi = np.empty(rows.size)
+        n_r = r.size
+        np_hi = np.empty(n_r)
         on_h = th <= t_sw[r]
         h = np.flatnonzero(on_h)
         rh = r[h]
@@ -380,43 +386,49 @@ def _monthly_rows(wells, n_w, n_k, start_mi, start_day, end_day, uptime, cum_oil
         y += np_sw[rt]
         np_hi[tl] = y
         del x, y, h, rh, tl, rt, on_h, th
-        np_lo = np.empty(rows.size)
+        np_lo = np.empty(n_r)
         np_lo[1:] = np_hi[:-1]
         fr = first_row[rows]
         np_lo[fr] = np_st[r[fr]]
         upr = up[rows]
-        vol = np.zeros(N)
-        since = np.zeros(N)
         np.subtract(np_hi, np_lo, out=np_lo)
         np.maximum(np_lo, 0.0, out=np_lo)
         np_lo *= upr
-        vol[rows] = np_lo
         np_hi -= np_st[r]
         np.maximum(np_hi, 0.0, out=np_hi)
         np_hi *= upr
+        if isinstance(rows, slice):
+            return np_lo, np_hi
+        vol = np.zeros(N)
+        since = np.zeros(N)
+        vol[rows] = np_lo
         since[rows] = np_hi
         return vol, since
 
     oil_v, oil_since = stream_volumes(*oil_p)
     gas_v, gas_since = stream_volumes(*gas_p)
     # gas without its own fit: oil x recent GOR
-    gg = gas_by_gor[rep]
-    gas_v = np.where(gg, oil_v * gor[rep] / 1000.0, gas_v)
-    gas_since = np.where(gg, oil_since * gor[rep] / 1000.0, gas_since)
-    # guard: finite, non-negative (the closed forms are finite for valid parameters)
-    oil_v = np.where(np.isfinite(oil_v), oil_v, 0.0)
-    gas_v = np.where(np.isfinite(gas_v), gas_v, 0.0)
-    oil_since = np.where(np.isfinite(oil_since), oil_since, 0.0)
-    gas_since = np.where(np.isfinite(gas_since), gas_since, 0.0)
-    monthly = pd.DataFrame({
-        "well_id": pd.array(wells.to_numpy(), dtype="str").take(rep),
-        "month": (day_lo * 86_400_000_000_000).view("datetime64[ns]"),
-        "kind": "forecast",
-        "oil_bbl": oil_v,
-        "gas_mcf": gas_v,
-        "oil_rate_bopd": oil_v / days_m,
-        "gas_rate_mcf_d": gas_v / days_m,
-        "cum_oil_bbl": cum_oil[rep] + oil_since,
-        "cum_gas_mcf": cum_gas[rep] + gas_since,
-    })
-    return monthly[MONTHLY_COLUMNS]
+    if gas_by_gor.any():
+        gg = gas_by_gor[rep]
+        gas_v = np.where(gg, oil_v * gor[rep] / 1000.0, gas_v)
+        gas_since = np.where(gg, oil_since * gor[rep] / 1000.0, gas_since)
+    # guard: finite (the closed forms are finite for valid parameters)
+    for arr in (oil_v, gas_v, oil_since, gas_since):
+        bad = ~np.isfinite(arr)
+        if bad.any():
+            arr[bad] = 0.0
+    # the float columns written into one (6, N) block that the frame takes over without a
+    # copy (a frame built from separate columns stacks them, a copy of every value)
+    vals = np.empty((6, N))
+    vals[0] = oil_v
+    vals[1] = gas_v
+    np.divide(oil_v, days_m, out=vals[2])
+    np.divide(gas_v, days_m, out=vals[3])
+    np.add(cum_oil[rep], oil_since, out=vals[4])
+    np.add(cum_gas[rep], gas_since, out=vals[5])
+    del oil_v, gas_v, oil_since, gas_since
+    monthly = pd.DataFrame(vals.T, columns=MONTHLY_COLUMNS[3:], copy=False)
+    monthly.insert(0, "well_id", pd.array(wells.to_numpy(), dtype="str").take(rep))
+    monthly.insert(1, "month", (day_lo * 86_400_000_000_000).view("datetime64[ns]"))
+    monthly.insert(2, "kind", pd.array(np.full(1, "forecast", dtype=object), dtype="str").take(np.zeros(N, np.intp)))
+    return monthly
