@@ -15,11 +15,20 @@ times:
 Prints wells/s for both, the ratio, fit-quality parity (share of wells whose robust cost is
 within 0.1 % of, or below, the per-well fit, per family) and peak memory.
 
+``--big`` is the large case, 100,000 wells end to end as a streamed batch run: the tidy
+monthly table of all wells in memory (its generation not timed), then by blocks of
+``--block`` wells in worker processes (the table inherited through fork, never pickled):
+``fit_field`` (3 families), ``forecast_field`` with the monthly table, the monthly rows
+consumed (summed into field oil per calendar month, counted) and dropped; the forecast
+summary of every well (remaining, EUR, economic-limit month) kept. Prints the wall time, the
+CPU time per phase, the outputs' totals, and the peak RSS of the main process and of the
+largest worker.
+
 Usage::
 
     .venv/bin/python benchmarks/bench_decline.py                 # 10,000 wells
-    .venv/bin/python benchmarks/bench_decline.py --wells 100000  # the large case
-    .venv/bin/python benchmarks/bench_decline.py --big           # same as --wells 100000
+    .venv/bin/python benchmarks/bench_decline.py --big           # 100,000 wells end to end
+    .venv/bin/python benchmarks/bench_decline.py --wells 30000   # the 10,000-well run, larger
 """
 
 from __future__ import annotations
