@@ -922,14 +922,14 @@ MB_MAX_BLOCKS = 48
 #: the GOR is within 1 % of its maximum, default synthetic sets), so surveys place the well
 #: on its path where the GOR cannot.
 MB_USE_SURVEYS = True
-MB_SURVEY_SIGMA_PSIA = 50.0
+MB_SURVEY_SIGMA_PSIA = 40.0
 MB_MAX_SURVEYS = 48
 #: Wells per vectorised chunk of the misfit (keeps temporaries small).
 MB_CHUNK = 256
 #: Fit accepted when its robust residual scale is at most this multiple of the noise level
 #: (plus MB_FIT_ABS_TOL); otherwise the GOR-only rules stand.
-MB_FIT_TOL = 1.3
-MB_FIT_ABS_TOL = 0.02
+MB_FIT_TOL = 1.6
+MB_FIT_ABS_TOL = 0.04
 #: Profile interval: recovery factors whose misfit lies within MB_PROFILE_CHI2 x sigma^2 of
 #: the best (about a 2-sigma interval for one parameter).
 MB_PROFILE_CHI2 = 4.0
@@ -949,7 +949,12 @@ def _mb_pvt(api: float, gamma_g: float, t_f: float, pb: float, pi: float):
 @functools.lru_cache(maxsize=1024)
 def _mb_curve(api: float, gamma_g: float, t_f: float, pb: float, pi: float,
               sgc: float, swc: float, sorg: float) -> dict:
-    """Tarner depletion path of one PVT group and Corey set (core.material_balance), cached."""
+    """Tarner depletion path of one PVT group and Corey set (core.material_balance), cached.
+
+    The GOR peak of the path is placed at the vertex of the parabola through the three path
+    points around the highest tabulated GOR (the tabulated maximum alone is quantised to one
+    pressure step; measured 0.06-0.08 % of Np/N on the default sets, 0.01 % after).
+    """
 
     pi = max(pi, pb)
     p_ab = max(50.0, 0.04 * pb)
@@ -958,13 +963,26 @@ def _mb_curve(api: float, gamma_g: float, t_f: float, pb: float, pi: float,
     pred = predict_depletion(pvt, rp, pi_psia=max(pi, pb + 1.0), p_abandon_psia=p_ab,
                              dp_psia=max(5.0, (pb - p_ab) / 120.0), n_steps_above=20)
     t = pred.table
+    r = t["np_over_n"].to_numpy(float)
+    gor = t["producing_gor_scf_stb"].to_numpy(float)
+    r_pk = np.nan if pred.np_over_n_gor_peak is None else float(pred.np_over_n_gor_peak)
+    k = int(np.argmax(gor))
+    if np.isfinite(r_pk) and 0 < k < len(r) - 1:
+        x0, x1, x2 = r[k - 1], r[k], r[k + 1]
+        y0, y1, y2 = gor[k - 1], gor[k], gor[k + 1]
+        den = (x0 - x1) * (x0 - x2) * (x1 - x2)
+        if den != 0.0:
+            qa = (x2 * (y1 - y0) + x1 * (y0 - y2) + x0 * (y2 - y1)) / den
+            qb = (x2 * x2 * (y0 - y1) + x1 * x1 * (y2 - y0) + x0 * x0 * (y1 - y2)) / den
+            if qa < 0.0:
+                r_pk = float(np.clip(-qb / (2.0 * qa), x0, x2))
     return {
         "label": f"Tarner path, Corey Sgc {sgc:.2f} Swc {swc:.2f} Sorg {sorg:.2f}",
-        "r": t["np_over_n"].to_numpy(float), "gp": t["gp_over_n_scf_stb"].to_numpy(float),
-        "gor": t["producing_gor_scf_stb"].to_numpy(float), "p": t["p_psia"].to_numpy(float),
+        "r": r, "gp": t["gp_over_n_scf_stb"].to_numpy(float),
+        "gor": gor, "p": t["p_psia"].to_numpy(float),
         "r_b": float(pred.np_over_n_bubble),
         "r_s2": np.nan if pred.np_over_n_stage2_end is None else float(pred.np_over_n_stage2_end),
-        "r_pk": np.nan if pred.np_over_n_gor_peak is None else float(pred.np_over_n_gor_peak),
+        "r_pk": r_pk,
         "gor_pk": np.nan if pred.gor_peak_scf_stb is None else float(pred.gor_peak_scf_stb),
     }
 

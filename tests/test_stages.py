@@ -356,10 +356,45 @@ def test_accuracy_bubble_point_month_with_surveys(accuracy):
 
 @pytest.mark.xfail(strict=True, reason="target not met: the well model's GOR peaks are flat in "
                    "time (noise-free GOR within 1 % of its maximum over a median 22-25 months), so "
-                   "the month of the maximum is ill-posed; measured 69-75 %, see readme")
+                   "the month of the maximum needs the well's OOIP right to ~0.4 %; measured 76.1-81.5 % "
+                   "on 600-well fields (seeds 2026, 7, 11, 99, 314) and 71.9 % on this 240-well set, "
+                   "see docs/stages-and-planning.md")
 def test_accuracy_gor_peak_month_within_3_months(accuracy):
     # Issue 5 target: GOR peak month within 3 months for >= 80 % of wells past the peak.
     assert accuracy["peak_within_3"] >= 0.80
+
+
+def test_accuracy_gor_peak_month_error_distribution(accuracy):
+    # Floors ours (regression on our own measurement, not a target of the issue): the
+    # declared peak months of the wells past the peak, median error <= 2 months and 80th
+    # percentile <= 5 months (measured 2 and 4 on this set, 1 and 3-4 on the 600-well fields).
+    assert accuracy["peak_error_median"] <= 2.0
+    assert accuracy["peak_error_p80"] <= 5.0
+
+
+def test_tarner_path_peak_placed_between_pressure_steps():
+    # The GOR maximum of a tabulated Tarner path is quantised to one pressure step; the path
+    # used by the match (120 steps) places it at the vertex of the parabola through the three points
+    # around the tabulated maximum. Check (convergence of our own Tarner stepping, values
+    # from our code, core.material_balance.predict_depletion): a path 25x finer than the
+    # coarse one (3000 steps) is the reference; the vertex of the 120-step path lies within
+    # 0.02 % of it, closer than the 120-step tabulated maximum.
+    import warnings
+
+    from core.material_balance import predict_depletion
+    from core.relperm import CoreyGasOil
+    from core.stages import _mb_curve, _mb_pvt
+
+    key, (sgc, swc, sorg) = (36.0, 0.78, 185.0, 2400.0, 3400.0), (0.06, 0.21, 0.15)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        ref = predict_depletion(_mb_pvt(*key), CoreyGasOil(swc=swc, sgc=sgc, sorg=sorg), pi_psia=3400.0,
+                                p_abandon_psia=96.0, dp_psia=(2400.0 - 96.0) / 3000.0, n_steps_above=20)
+        c = _mb_curve(*key, sgc, swc, sorg)
+    r_ref = ref.np_over_n_gor_peak
+    r_tab = c["r"][int(np.argmax(c["gor"]))]
+    assert abs(c["r_pk"] / r_ref - 1.0) < 2e-4
+    assert abs(c["r_pk"] - r_ref) < abs(r_tab - r_ref)
 
 
 def test_accuracy_gor_peak_month_against_the_flat_top_band(accuracy):
