@@ -184,7 +184,20 @@ def _child(input_csv: str, out_dir: str, workers: str | None, block_wells: str |
 
     orig_stream = streamed_mod.run_streamed
 
+    phase_log = os.environ.get("DD_BENCH_PHASES")
+
     def stream(*a, **k):
+        if phase_log:  # phases with times, to read beside the parent's memory samples
+            fh = open(phase_log, "w")
+            last = [""]
+
+            def log(fraction, message=""):
+                if message != last[0]:
+                    last[0] = message
+                    fh.write(f"{time.time():.2f}\t{message}\n")
+                    fh.flush()
+
+            k["progress"] = log
         r = orig_stream(*a, **k)
         holder["streamed"] = r
         return r
@@ -308,7 +321,29 @@ def main() -> int:
         cmd += ["--workers", args.workers]
     if args.block_wells is not None:
         cmd += ["--block-wells", str(args.block_wells)]
-    proc = subprocess.run(cmd, capture_output=True, text=True, cwd=ROOT)
+    phases = work / "phases.tsv"
+    env = dict(os.environ, DD_BENCH_PHASES=str(phases))
+    # the parent samples the child's process tree from outside (a thread inside the child
+    # cannot run while the child holds the interpreter lock in a long C call)
+    samples: list[tuple[float, float]] = []
+    with open(work / "child.out", "w") as out_fh, open(work / "child.err", "w") as err_fh:
+        proc = subprocess.Popen(cmd, stdout=out_fh, stderr=err_fh, text=True, cwd=ROOT, env=env)
+        try:
+            import psutil
+
+            me = psutil.Process(proc.pid)
+            while proc.poll() is None:
+                try:
+                    total = me.memory_info().rss + sum(c.memory_info().rss for c in me.children(recursive=True))
+                    samples.append((time.time(), total / 2**20))
+                except psutil.Error:
+                    pass
+                time.sleep(0.05)
+        except ImportError:  # pragma: no cover
+            proc.wait()
+        proc.wait()
+    proc.stdout = (work / "child.out").read_text()
+    proc.stderr = (work / "child.err").read_text()
     lines = [ln for ln in proc.stdout.splitlines() if ln.startswith("{")]
     if proc.returncode != 0 or not lines:
         print(proc.stdout)
@@ -326,6 +361,21 @@ def main() -> int:
           f"{r['peak_rss_children_mib']:,.0f} MiB largest worker process")
     print(f"peak memory of the process tree (sampled every 0.1 s): {r['peak_tree_mib']:,.0f} MiB in all "
           f"(process {r['peak_tree_self_mib']:,.0f} MiB, workers {r['peak_tree_children_mib']:,.0f} MiB at most)")
+    if samples:
+        peak_t, peak = max(samples, key=lambda x: x[1])
+        print(f"peak memory of the process tree sampled from outside every 0.05 s: {peak:,.0f} MiB")
+        if phases.exists():
+            marks = [ln.split("\t", 1) for ln in phases.read_text().splitlines() if "\t" in ln]
+            by_phase: dict[str, float] = {}
+            for t_s, mib in samples:
+                name = "start"
+                for t_m, msg in marks:
+                    if float(t_m) <= t_s:
+                        name = msg.split(" of ")[0] if msg.startswith("block ") else msg
+                by_phase[name if not name.startswith("block ") else "blocks"] = max(
+                    by_phase.get(name if not name.startswith("block ") else "blocks", 0.0), mib)
+            for name, mib in by_phase.items():
+                print(f"  peak during {name[:60]:<60} {mib:8,.0f} MiB")
     la = os.getloadavg()
     print(f"load average at the end: {la[0]:.2f} {la[1]:.2f} {la[2]:.2f}")
     if not args.keep:

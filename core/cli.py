@@ -121,9 +121,10 @@ def build_parser() -> argparse.ArgumentParser:
     i.add_argument("--unit-column", metavar="NAME", help="input column holding the reservoir unit. Default: recognised from the header")
     i.add_argument("--block-wells", type=int, metavar="N", help=(
         "run streamed by blocks of N wells (memory bounded by the block, not the file; 0 = never stream). "
-        "Default: streamed in blocks of %d wells when INPUT is a CSV file of %d MiB or more, else the normal "
-        "run in one piece. The streamed run gives the same numbers; it does not take --samples, "
-        "--type-wells or --db" % (_DEFAULT_BLOCK_WELLS, _STREAM_MIN_MB)))
+        "Default: streamed in blocks of {:,} wells when INPUT is a CSV file of {:,} MiB or more, else the normal "
+        "run in one piece. The streamed run gives the same tables (numbers to floating-point rounding; a "
+        "well's stage evidence text can differ, see the README); it does not take --samples, "
+        "--type-wells or --db".format(_DEFAULT_BLOCK_WELLS, _STREAM_MIN_MB)))
 
     s = f.add_argument_group("store and output")
     s.add_argument("--db", metavar="PATH_OR_URL", help="record the run in this store (SQLite file path or database URL); writes changes.csv when it already holds a run of the same field. Default: not recorded")
