@@ -776,7 +776,7 @@ def _fit_families(t, y, w0, *, b_max, loss, scale, max_iter, tol, fixed_b=None):
     costs = res_h[1].reshape(ns, n)
     costs = np.where(np.isfinite(costs), costs, np.inf)
     best = np.argmin(costs, axis=0)
-    rows = best * n + np.arange(n)
+    rows = best * n + np.arange(n) if ns > 1 else slice(None)  # one start: no copy
     out["hyperbolic"] = _pack(res_h, rows, w0, y)
     return out
 
