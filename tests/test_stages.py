@@ -354,11 +354,11 @@ def test_accuracy_bubble_point_month_with_surveys(accuracy):
     assert accuracy["bp_within_3_surveys"] >= 0.70
 
 
-@pytest.mark.xfail(strict=True, reason="target not met: the well model's GOR peaks are flat in "
-                   "time (noise-free GOR within 1 % of its maximum over a median 22-25 months), so "
-                   "the month of the maximum needs the well's OOIP right to ~0.4 %; measured 76.1-81.5 % "
-                   "on 600-well fields (seeds 2026, 7, 11, 99, 314) and 71.9 % on this 240-well set, "
-                   "see docs/stages-and-planning.md")
+@pytest.mark.xfail(strict=True, reason="target not met on this set: measured 78.1 % (64 wells past "
+                   "the peak); on 600-well fields 84.0 / 81.2 / 82.1 % (seeds 2026, 7, 99) but 79.6 / "
+                   "78.0 % (seeds 11, 314). The well model's GOR peaks are flat in time (noise-free GOR "
+                   "within 1 % of its maximum over a median 22-25 months), so dating the maximum within "
+                   "3 months needs the well's oil in place right to ~0.4 %; see docs/stages-and-planning.md")
 def test_accuracy_gor_peak_month_within_3_months(accuracy):
     # Issue 5 target: GOR peak month within 3 months for >= 80 % of wells past the peak.
     assert accuracy["peak_within_3"] >= 0.80
@@ -367,7 +367,7 @@ def test_accuracy_gor_peak_month_within_3_months(accuracy):
 def test_accuracy_gor_peak_month_error_distribution(accuracy):
     # Floors ours (regression on our own measurement, not a target of the issue): the
     # declared peak months of the wells past the peak, median error <= 2 months and 80th
-    # percentile <= 5 months (measured 2 and 4 on this set, 1 and 3-4 on the 600-well fields).
+    # percentile <= 5 months (measured 2 and 3.6 on this set, 1-2 and 3-4 on the 600-well fields).
     assert accuracy["peak_error_median"] <= 2.0
     assert accuracy["peak_error_p80"] <= 5.0
 
