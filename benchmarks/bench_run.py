@@ -226,7 +226,15 @@ def _child(input_csv: str, out_dir: str, workers: str | None, block_wells: str |
         n_wells, n_fc, n_monthly = int(len(res.wells)), int(res.summary.get("wells_forecast", 0)), int(len(res.monthly))
     else:
         n_wells = n_fc = n_monthly = None
+    # VmHWM: this process's own high-water mark (ru_maxrss survives exec and would report the
+    # launching process's size at fork when that was larger)
     ru_self = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024.0
+    try:
+        for line in Path("/proc/self/status").read_text().splitlines():
+            if line.startswith("VmHWM:"):
+                ru_self = float(line.split()[1]) / 1024.0
+    except OSError:  # pragma: no cover - not Linux
+        pass
     ru_children = resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss / 1024.0
     out = {
         "exit_code": code,
@@ -357,7 +365,7 @@ def main() -> int:
         if phase in r["timings_s"]:
             print(f"  {phase:<10} {r['timings_s'][phase]:8.2f} s")
     print(f"  {'total':<10} {r['wall_s']:8.2f} s  (file to all outputs, in-process CLI)")
-    print(f"peak memory (ru_maxrss): {r['peak_rss_mib']:,.0f} MiB command process, "
+    print(f"peak memory (VmHWM / ru_maxrss): {r['peak_rss_mib']:,.0f} MiB command process, "
           f"{r['peak_rss_children_mib']:,.0f} MiB largest worker process")
     print(f"peak memory of the process tree (sampled every 0.1 s): {r['peak_tree_mib']:,.0f} MiB in all "
           f"(process {r['peak_tree_self_mib']:,.0f} MiB, workers {r['peak_tree_children_mib']:,.0f} MiB at most)")
