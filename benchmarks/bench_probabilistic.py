@@ -7,12 +7,15 @@ checks the two results are identical and prints the times.
 
 Usage: python benchmarks/bench_probabilistic.py [--wells 10000] [--samples 200] [--workers 2]
        [--level-error auto|none] [--skip-single] [--skip-dask]
+
+Prints ``uptime`` before each timed step: the machine is shared, quote the load with a time.
 """
 
 from __future__ import annotations
 
 import argparse
 import os
+import subprocess
 import sys
 import time
 import warnings
@@ -50,12 +53,21 @@ def noisy_arps_table(n_wells: int, seed: int = 1) -> pd.DataFrame:
     })
 
 
+def uptime() -> str:
+    """The machine's load (``uptime``; the cores are shared with other jobs)."""
+    try:
+        return subprocess.run(["uptime"], capture_output=True, text=True, timeout=10).stdout.strip()
+    except (OSError, subprocess.SubprocessError):
+        return "load average %.2f, %.2f, %.2f" % os.getloadavg()
+
+
 def main(argv=None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--wells", type=int, default=10000)
     ap.add_argument("--samples", type=int, default=200)
     ap.add_argument("--workers", type=int, default=2)
-    ap.add_argument("--level-error", default="none", choices=["auto", "none"])
+    ap.add_argument("--level-error", default="auto", choices=["auto", "none"],
+                    help="auto: the run's default (level and trend error by hindcasts); none: plain bootstrap")
     ap.add_argument("--skip-single", action="store_true")
     ap.add_argument("--skip-dask", action="store_true")
     a = ap.parse_args(argv)
@@ -66,6 +78,7 @@ def main(argv=None) -> int:
 
     print(f"machine: {os.cpu_count()} logical CPUs (shared); wells {a.wells}, samples {a.samples}, "
           f"level error {a.level_error}")
+    print(f"uptime: {uptime()}")
     t = time.perf_counter()
     prod = noisy_arps_table(a.wells)
     print(f"build table: {time.perf_counter() - t:7.1f} s ({len(prod)} well-months)")
@@ -76,12 +89,16 @@ def main(argv=None) -> int:
     kw = dict(settings=st, samples=a.samples, seed=0, level_error=None if a.level_error == "none" else "auto")
     single = dist = None
     if not a.skip_single:
+        print(f"uptime before the single-process run: {uptime()}", flush=True)
         t = time.perf_counter()
         single = probabilistic_field(prod, ff, **kw)
         ts = time.perf_counter() - t
+        if single.calibration is not None:
+            print(f"calibration: {single.calibration.method}")
         print(f"probabilistic, one process: {ts:7.1f} s  ({1e3 * ts / a.wells:.1f} ms per well, "
               f"{len(single.monthly)} monthly rows)")
     if not a.skip_dask:
+        print(f"uptime before the local cluster run: {uptime()}", flush=True)
         t = time.perf_counter()
         with dask_client("local", n_workers=a.workers) as client:
             t_up = time.perf_counter() - t
@@ -90,9 +107,12 @@ def main(argv=None) -> int:
             td = time.perf_counter() - t
         print(f"local cluster start ({a.workers} workers): {t_up:7.1f} s")
         print(f"probabilistic, local cluster: {td:7.1f} s  ({1e3 * td / a.wells:.1f} ms per well)")
+        print(f"uptime after: {uptime()}")
     if single is not None and dist is not None:
         same = (single.wells.equals(dist.wells) and single.monthly.equals(dist.monthly)
-                and np.array_equal(single.remaining_samples, dist.remaining_samples))
+                and single.field.equals(dist.field) and single.field_monthly.equals(dist.field_monthly)
+                and np.array_equal(single.remaining_samples, dist.remaining_samples)
+                and np.array_equal(single.eur_samples, dist.eur_samples))
         print(f"identical results: {same}")
     return 0
 

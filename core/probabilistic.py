@@ -41,7 +41,7 @@ For every well whose oil decline was fitted (:func:`core.decline.fit_field`):
 7. Calibration (level and trend error). The block bootstrap alone measures the scatter
    about the fitted curve and the parameter uncertainty it implies; it does not see the
    curve itself drifting (regime changes, uptime, workovers), and in hindcasts it is far
-   too confident (17-45 % of hidden 24-month volumes inside its P90-P10 range on our
+   too confident (13-45 % of hidden 24- and 48-month volumes inside its P90-P10 range on our
    sample and synthetic fields; Cheng et al. 2010 report the same over-confidence of the
    conventional bootstrap). So the field's own hindcast errors are measured, as in the
    backward (hindcast) analysis of Cheng et al.: hide the last 24 (and 48) months of the
