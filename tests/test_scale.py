@@ -65,6 +65,11 @@ def test_dask_auto_calibration_equals_single_process(client, field):
     dist = probabilistic_field(prod, ff, scheduler=client, **kw)
     pd.testing.assert_frame_equal(dist.wells, single.wells, check_exact=True)
     assert np.array_equal(dist.calibration.pool, single.calibration.pool)
+    # the trend (decline) error is drawn too, on the workers, with the same numbers
+    assert single.calibration.trend_sd > 0.0
+    assert np.array_equal(dist.calibration.trend_pool, single.calibration.trend_pool)
+    pd.testing.assert_frame_equal(dist.field, single.field, check_exact=True)
+    assert np.array_equal(dist.eur_samples, single.eur_samples)
 
 
 def test_map_chunks_keeps_order(client):
