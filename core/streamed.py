@@ -8,10 +8,14 @@ holds one block of wells at a time:
 (delimiter, header line, columns, decimal mark: :func:`core.production.csv_layout`) runs
 once on the first part of the file and is applied to every chunk; a chunk whose own lines
 sniff differently is reported in the load report (``info`` line naming its rows), never
-silently. Each line goes, verbatim, to the spill file of its well's block: a well joins the
-block open when its id first appears (blocks of ``block_wells`` ids), so every row of a well
-lands in one block and duplicates and conflicts of a well are handled by the loader exactly
-as in the normal run. The date order (day/month) is settled once from every distinct date
+silently. Each line goes, verbatim, to the spill file of its well's sub-block: a well joins
+the open sub-block of its reservoir unit (the production file's unit column, else the
+well-header file's) when its id first appears, so every row of a well lands in one block and
+duplicates and conflicts of a well are handled by the loader exactly as in the normal run.
+Blocks are the units' sub-blocks packed up to ``block_wells`` wells, units in name order: a
+unit that fits in a block is run whole (the stage tracker fills header gaps from the unit's
+median and fits one material-balance Corey set per PVT group of wells, so a well's stage
+depends on the other wells of its unit). The date order (day/month) is settled once from every distinct date
 text of the file, as the loader does on the whole file; the encoding likewise (latin-1 for
 every block when any byte is not UTF-8); a column that is text anywhere in the file is read
 as text in every block. Rows with extra fields and a truncated last line are reported as the
@@ -28,12 +32,14 @@ unit totals and the summary come from the wells' rows in the normal run's order,
 equal the normal run's.
 
 Order of the rows: each block's wells and months come in the normal run's order (sorted by
-well id); blocks follow the order in which their wells first appear in the file. For a file
-sorted by well id this is the normal run's order except that wells whose every row was
-rejected come at the end of their block instead of at the end of the file; load-report lines
-come block by block. Numbers: identical, except that a well's Arps fit is made in a batch of
-the wells of its block, and the decline engine's batch padding can move a fit in its last
-bits (relative differences of order 1e-12; see the tests).
+well id); blocks follow the units in name order (a unit's wells in the order they first
+appear in the file); wells whose every row was rejected come at the end of their block;
+load-report lines come block by block. Numbers: the same, except that a well's Arps fit is
+made in a batch of the wells of its block, and the decline engine's batch padding moves a fit
+in its last bits (the solver's 1e-8 stopping tolerance can carry that to about 1e-9 relative;
+see the tests); and a unit larger than a block (or a PVT group spread over units in
+different blocks) is split, so its wells' material-balance match and header-gap fill see only
+their block (stage evidence, and rarely a stage date, can then differ).
 
 Not streamed (an :class:`InputError` says so and names ``--block-wells 0``): ``--samples``
 (the probabilistic calibration pools every well of the field), ``--type-wells`` and ``--db``.
@@ -136,8 +142,9 @@ class Spill:
     layout: Any
     mapping: dict
     n_blocks: int
-    rows_in_block: list
-    extra: dict  # block -> list of report DataFrames
+    blocks: list  # block -> its sub-blocks (spill files), each holding wells of one unit
+    rows_in_block: list  # per sub-block
+    extra: dict  # sub-block -> list of report DataFrames
     object_cols: set
     slow: bool
     encoding: str
@@ -228,19 +235,30 @@ def split_file(
     messages: list[str] = list(layout.messages)
     units_row = None
     blank_total = 0
-    state = {"open": -1}
 
-    def assign(keys: np.ndarray) -> np.ndarray:
+    open_of: dict[str, int] = {}
+    unit_of_sub: list[str] = []
+    header_unit: dict[str, str] = {}
+
+    def assign(keys: np.ndarray, units: np.ndarray | None = None) -> np.ndarray:
+        """Sub-block of each row's well: a well joins the open sub-block of its reservoir unit
+        when its id first appears (sub-blocks hold wells of one unit, so a unit's wells stay
+        together when the unit fits in a block)."""
         codes, uniq = pd.factorize(keys, use_na_sentinel=False)
+        first = np.full(len(uniq), -1, dtype=np.int64)
+        first[codes[::-1]] = np.arange(len(codes))[::-1]
         ub = np.empty(len(uniq), dtype=np.int64)
         for i, k in enumerate(uniq):
             b = block_of.get(k)
             if b is None:
-                if state["open"] < 0 or count[state["open"]] >= block_wells:
-                    state["open"] = len(count)
+                u = str(units[first[i]]) if units is not None else header_unit.get(k, "unassigned")
+                b = open_of.get(u, -1)
+                if b < 0 or count[b] >= block_wells:
+                    b = len(count)
                     count.append(0)
                     rows_in_block.append(0)
-                b = state["open"]
+                    unit_of_sub.append(u)
+                    open_of[u] = b
                 block_of[k] = b
                 count[b] += 1
             ub[i] = b
@@ -253,6 +271,13 @@ def split_file(
     def add_extra(b: int, df: pd.DataFrame) -> None:
         extra.setdefault(int(b), []).append(df)
 
+    header_load = None
+    if wells_path is not None:
+        kw = {} if max_bytes is None else {"max_bytes": int(max_bytes)}
+        header_load = P.load_well_header(Path(wells_path), units=units, **kw)
+        hw = header_load.wells
+        hu = hw["unit"].where(hw["unit"].notna() & (hw["unit"].astype(str) != ""), "unassigned").astype(str)
+        header_unit.update(zip(hw["well_id"].astype(str).str.strip(), hu))
     contradictions: list[pd.DataFrame] = []
     line_no = layout.header_line + 2  # file row (1-based) of the next data line
     first_chunk = True
@@ -313,11 +338,8 @@ def split_file(
         m = int(mi.max())
         as_of = pd.Timestamp(year=m // 12, month=m % 12 + 1, day=1)
     # the well-header file: loaded once, each well's line given to its block
-    header_load = None
     header_of_block: dict[int, list] = {}
-    if wells_path is not None:
-        kw = {} if max_bytes is None else {"max_bytes": int(max_bytes)}
-        header_load = P.load_well_header(Path(wells_path), units=units, **kw)
+    if header_load is not None:
         ids = header_load.wells["well_id"].astype(str).str.strip().to_numpy(dtype=object)
         bl = assign(ids) if len(ids) else np.zeros(0, np.int64)
         for w, b in zip(ids, bl):
@@ -331,7 +353,20 @@ def split_file(
             header_report_of_block = {}
     else:
         header_report_of_block = {}
-    return Spill(work=work, name=name, layout=layout, mapping=mp, n_blocks=len(count), rows_in_block=rows_in_block,
+    # blocks: the sub-blocks of each unit in turn (units sorted), packed up to block_wells wells
+    blocks: list[list[int]] = []
+    cur: list[int] = []
+    n = 0
+    for sb in sorted(range(len(count)), key=lambda x: (unit_of_sub[x], x)):
+        if cur and n + count[sb] > block_wells:
+            blocks.append(cur)
+            cur, n = [], 0
+        cur.append(sb)
+        n += count[sb]
+    if cur:
+        blocks.append(cur)
+    return Spill(work=work, name=name, layout=layout, mapping=mp, n_blocks=len(blocks), blocks=blocks,
+                 rows_in_block=rows_in_block,
                  extra=extra, object_cols=object_cols, slow=slow, encoding=encoding, sha256=sha.hexdigest(),
                  dayfirst=dayfirst, as_of_estimate=as_of, units_row=units_row, header_load=header_load,
                  header_of_block=header_of_block, header_report_of_block=header_report_of_block,
@@ -411,7 +446,13 @@ def _split_chunk(chunk, line_no, eof, layout, mp, name, is_first, assign, add_ex
     dates.update(pd.unique(mc.astype(object).where(mc.notna(), "")).tolist())
     wc = frame[mp["well_id"]]
     keys = wc.astype(object).where(wc.notna(), "").astype(str).str.strip().to_numpy(dtype=object)
-    blk = assign(keys) if len(keys) else np.zeros(0, np.int64)
+    if "unit" in mp:
+        uc = frame[mp["unit"]]
+        uu = uc.astype(object).where(uc.notna(), "").astype(str).str.strip()
+        uu = uu.where(~uu.str.lower().isin(P.NA_TOKENS | {""}), "unassigned").to_numpy(dtype=object)
+    else:
+        uu = None
+    blk = assign(keys, uu) if len(keys) else np.zeros(0, np.int64)
     if extra_df is not None and len(extra_df):
         ek = extra_df["well_id"].astype(str).str.strip().to_numpy(dtype=object)
         eb = assign(ek)
@@ -443,13 +484,13 @@ HEAD_LINES_CHECK = 80
 # --------------------------------------------------------------------------------------------
 # pass 2: run the blocks
 # --------------------------------------------------------------------------------------------
-def _block_table(spill: Spill, b: int) -> Any:
+def _block_table(spill: Spill, subs: list) -> Any:
     """The block's cells as the loader's RawTable (file row numbers, file-wide decisions)."""
     from core import production as P
 
-    lp = spill.lines_path(b)
-    data = lp.read_bytes() if lp.exists() else b""
-    rows = np.fromfile(spill.rows_path(b), dtype=np.int64) if spill.rows_path(b).exists() else np.zeros(0, np.int64)
+    data = b"".join(spill.lines_path(b).read_bytes() for b in subs if spill.lines_path(b).exists())
+    rr = [np.fromfile(spill.rows_path(b), dtype=np.int64) for b in subs if spill.rows_path(b).exists()]
+    rows = np.concatenate(rr) if rr else np.zeros(0, np.int64)
     if spill.units_row is not None:
         data = spill.units_row[0] + b"\n" + data
         rows = np.r_[np.int64(spill.units_row[1]), rows]
@@ -469,22 +510,23 @@ def _block_table(spill: Spill, b: int) -> Any:
         else:
             frame = pd.DataFrame({c: pd.Series(dtype=object) for c in layout.header})
     del text
-    parts = spill.extra.get(b, [])
+    parts = [x for b in subs for x in spill.extra.get(b, [])]
     extra = pd.concat(parts, ignore_index=True) if parts else None
     return P.RawTable(frame, rows, spill.name, "csv", spill.sha256, layout.decimal_comma, [], extra)
 
 
-def _block_header(spill: Spill, b: int) -> Any:
+def _block_header(spill: Spill, subs: list) -> Any:
     from core import production as P
 
     if spill.header_load is None:
         return None
     hl = spill.header_load
-    ids = set(spill.header_of_block.get(b, []))
+    ids = {w for b in subs for w in spill.header_of_block.get(b, [])}
     w = hl.wells[hl.wells["well_id"].astype(str).str.strip().isin(ids)].reset_index(drop=True)
-    rep = spill.header_report_of_block.get(b, hl.report.iloc[0:0])
+    reps = [spill.header_report_of_block[b] for b in subs if b in spill.header_report_of_block]
+    rep = pd.concat(reps, ignore_index=True) if reps else hl.report.iloc[0:0]
     return P.WellHeaderLoad(wells=w, report=rep, mapping=hl.mapping, file_name=hl.file_name,
-                            messages=list(hl.messages) if b == 0 else [])
+                            messages=list(hl.messages) if 0 in subs else [])
 
 
 def _wells_without_rows(load: Any) -> pd.DataFrame:
@@ -706,10 +748,11 @@ def _run_blocks(spill, out, work, settings, as_of, pressure_kind, cap, prog, R, 
         for b in range(spill.n_blocks):
             prog(0.15 + 0.73 * b / max(spill.n_blocks, 1), f"block {b + 1:,} of {spill.n_blocks:,}")
             t = time.perf_counter()
-            rt = _block_table(spill, b)
+            subs = spill.blocks[b]
+            rt = _block_table(spill, subs)
             load = load_production(
                 rt, units=settings.units, unit_column=settings.unit_column,
-                well_header=_block_header(spill, b), pressure_kind=pressure_kind, dayfirst=spill.dayfirst,
+                well_header=_block_header(spill, subs), pressure_kind=pressure_kind, dayfirst=spill.dayfirst,
                 allow_no_rows=True,
             )
             del rt
