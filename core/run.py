@@ -641,7 +641,7 @@ def _add_probabilistic(wells: pd.DataFrame, monthly: pd.DataFrame, prod: pd.Data
     deterministic end (a sample that lasts longer) have no row there: they are counted in the
     EUR and remaining percentiles and in the field totals, and a note gives their number.
     """
-    from core.probabilistic import probabilistic_field
+    from core.probabilistic import add_fixed_wells, probabilistic_field
 
     # gas and condensate wells run on their gas decline (deterministic here): they leave the
     # bootstrap of oil declines and join the field totals at their deterministic volumes
@@ -665,15 +665,11 @@ def _add_probabilistic(wells: pd.DataFrame, monthly: pd.DataFrame, prod: pd.Data
             pw.loc[g_ids, f"remaining_oil_bbl_{lab}"] = wg.loc[g_ids, "remaining_oil_bbl"].to_numpy(float)
             pw.loc[g_ids, f"econ_limit_date_{lab}"] = wg.loc[g_ids, "econ_limit_date"].to_numpy()
         pw.loc[g_ids, "prob_method"] = "deterministic (gas well forecast on its gas decline)"
-        field_t = pr.field.copy()
-        for q in ("remaining_oil_bbl", "eur_oil_bbl"):
-            add = float(np.nansum(wg.loc[g_ids, q].to_numpy(float)))
-            sel = field_t["quantity"] == q
-            for c in ("p90", "p50", "p10", "mean"):
-                field_t.loc[sel, c] = field_t.loc[sel, c] + add  # a constant in every sample
-            field_t.loc[sel, "n_wells"] = field_t.loc[sel, "n_wells"] + len(g_ids)
-        field_t["method"] = field_t["method"] + "; gas wells added at their deterministic volumes"
-        pr = dataclasses.replace(pr, field=field_t)
+        gas_months = monthly[(monthly["kind"] == "forecast").to_numpy()
+                             & monthly["well_id"].astype(str).isin(set(g_ids)).to_numpy()]
+        pr = add_fixed_wells(pr, wg.loc[g_ids, ["remaining_oil_bbl", "eur_oil_bbl"]].reset_index(),
+                             gas_months[["month", "oil_bbl"]],
+                             note="gas wells added at their deterministic volumes")
     out = wells.copy()
     for c in PROB_WELLS_COLUMNS:
         v = pw[c] if c in pw.columns else pd.Series(np.nan, index=pw.index)

@@ -1044,31 +1044,15 @@ def prob_field_band(prob, run=None) -> pd.DataFrame | None:
     """The field's P90/P50/P10 oil per forecast month (sample-wise sums over wells) as
     calendar-day rates [bbl/d], or None.
 
-    Core's run keeps gas and condensate wells out of the bootstrap (they are forecast on
-    their gas decline) and adds their deterministic volumes to the field totals; its
-    ``field_monthly`` leaves them out. Their deterministic forecast oil per month (from the
-    run's monthly table, a constant in every sample, so it shifts each percentile by itself)
-    is added here, so the band and the field forecast line count the same wells.
+    Gas and condensate wells are forecast on their gas decline; core's run adds their
+    deterministic oil to ``field_monthly`` (a constant in every sample), so the band and the
+    field forecast line count the same wells. ``run`` is accepted for older callers.
     """
     from dashboard.charts import calendar_day_rates
 
     if prob is None or prob.field_monthly.empty:
         return None
-    fm = prob.field_monthly
-    prun = prob_run(run) if run is not None else None
-    if prun is not None and "prob_method" in prun.wells:
-        gas = prun.wells.loc[prun.wells["prob_method"].astype(str).str.startswith("deterministic (gas"), "well_id"]
-        if len(gas):
-            m = prun.monthly
-            sel = (m["kind"] == "forecast").to_numpy() & m["well_id"].astype(str).isin(set(gas.astype(str))).to_numpy()
-            add = m.loc[sel].groupby("month")["oil_bbl"].sum()
-            f = fm.set_index("month")
-            idx = f.index.union(add.index)
-            f = f.reindex(idx).fillna(0.0)
-            for c in ("oil_bbl_p90", "oil_bbl_p50", "oil_bbl_p10"):
-                f[c] = f[c] + add.reindex(idx).fillna(0.0)
-            fm = f.rename_axis("month").reset_index()
-    return calendar_day_rates(fm)
+    return calendar_day_rates(prob.field_monthly)
 
 
 def prob_field_totals(prob) -> pd.DataFrame:

@@ -520,6 +520,32 @@ def test_probabilistic_columns_when_samples_are_asked(field_files, result):
     pd.testing.assert_frame_equal(again.wells, res.wells, check_exact=True)
 
 
+def test_probabilistic_field_totals_count_the_gas_wells_once():
+    """Gas and condensate wells (forecast on their gas decline, no samples) join the field
+    totals and the field months at their deterministic oil: a constant added to every
+    sample shifts each percentile by that constant (closed form), so the field P90 month
+    can never fall below the gas wells' own oil of that month."""
+    sample = Path(__file__).resolve().parents[1] / "sample_wells"
+    s = RunSettings(workers=1, samples=20, seed=1)
+    load = load_inputs(sample / "production.csv", wells_path=sample / "well_header.csv", settings=s)
+    res = run_field(load, settings=s)
+    w = res.wells
+    gas = w.loc[w["prob_method"].astype(str).str.startswith("deterministic (gas"), "well_id"].astype(str)
+    assert len(gas) == 3  # the Deep Sand gas and condensate wells of the sample field
+    f = res.probabilistic.field.set_index("quantity")
+    assert int(f.loc["eur_oil_bbl", "n_wells"]) == int(w["eur_oil_bbl"].notna().sum())
+    assert "gas wells added" in f.loc["eur_oil_bbl", "method"]
+    # field P50 = median of the sample-wise sums of the oil wells, plus the gas wells' EUR
+    gas_eur = w.loc[w["well_id"].astype(str).isin(set(gas)), "eur_oil_bbl"].sum()
+    sums = res.probabilistic.eur_samples.sum(axis=0)
+    assert f.loc["eur_oil_bbl", "p50"] == pytest.approx(np.median(sums) + gas_eur, rel=1e-9)
+    m = res.monthly
+    g = m[(m["kind"] == "forecast") & m["well_id"].astype(str).isin(set(gas))].groupby("month")["oil_bbl"].sum()
+    fm = res.probabilistic.field_monthly.set_index("month")
+    assert g.index.isin(fm.index).all()
+    assert (fm.loc[g.index, "oil_bbl_p90"] >= g - 1e-6).all()
+
+
 def test_samples_setting_is_checked():
     with pytest.raises(InputError, match="samples"):
         RunSettings(samples=5)
