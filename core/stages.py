@@ -132,6 +132,12 @@ UNIT_RECENT_MONTHS = 12
 #: Stage names used in the unit evidence.
 _STAGE_EVENT = {2: "bubble-point crossing", 3: "GOR rise above Rsi", 4: "GOR peak"}
 
+#: Months since a later regime began (stage 3: the GOR rise above Rsi; stage 4: the GOR peak)
+#: before the decline fit starts there rather than at the bubble-point crossing (common
+#: practice: about two years of a regime for a defensible Arps fit; the hindcast of
+#: ``scripts/fit_window_check.py`` compares this rule with fitting from the bubble point).
+REGIME_MIN_MONTHS = 24
+
 PLANNING_STATUSES = ("window_ahead", "window_open", "window_closing", "window_passed", "not_applicable")
 
 #: Rule text per planning status (sources: check-values section 8).
@@ -1314,6 +1320,24 @@ def _check_production(production: pd.DataFrame, need: tuple[str, ...]) -> None:
         raise InputError(f"production table lacks column(s) {missing}; expected the tidy monthly table")
 
 
+def regime_start_index(stage: np.ndarray, bp_mi: np.ndarray, s2_mi: np.ndarray, pk_mi: np.ndarray,
+                       as_of_mi: int | np.ndarray) -> np.ndarray:
+    """First month (month index) of the current decline regime, or NaN (stage 1 / none).
+
+    Decline character changes at each stage boundary (near-exponential above the bubble point,
+    hyperbolic below; steeper once free gas flows; another shape after the GOR peak), so the
+    fit window starts at the latest boundary the well has passed: the GOR peak in stage 4 and
+    the GOR rise above Rsi in stage 3, when at least :data:`REGIME_MIN_MONTHS` months have
+    passed since it; otherwise the bubble-point crossing (stage >= 2).
+    """
+    st = np.asarray(stage, dtype=float)
+    bp, s2, pk = (np.asarray(a, dtype=float) for a in (bp_mi, s2_mi, pk_mi))
+    old_enough = lambda ev: np.isfinite(ev) & (np.asarray(as_of_mi, dtype=float) - ev >= REGIME_MIN_MONTHS)  # noqa: E731
+    regime = np.where(st >= 2, bp, np.nan)
+    regime = np.where((st >= 3) & old_enough(s2), s2, regime)
+    return np.where((st >= 4) & old_enough(pk), pk, regime)
+
+
 def _finish(res: pd.DataFrame, attrs: pd.DataFrame, as_of: int, analog: pd.DataFrame | None) -> pd.DataFrame:
     """Reasons, confidence, planning status and the contract columns (shared by wells/units)."""
     res = res.join(attrs[["first_mi", "applicable", "reason"]])
@@ -1334,7 +1358,8 @@ def _finish(res: pd.DataFrame, attrs: pd.DataFrame, as_of: int, analog: pd.DataF
     analog_tab = res[res["passed"].astype(bool)] if analog is None else analog
     to_pk = _months_to_peak(res, analog_tab, as_of)
     st = res["stage"].to_numpy(float)
-    regime = np.where(st >= 2, res["bp_mi"].to_numpy(float), np.nan)
+    regime = regime_start_index(st, res["bp_mi"].to_numpy(float), res["s2_mi"].to_numpy(float),
+                                res["pk_mi"].to_numpy(float), as_of)
     evidence = _evidence(res)
     out = pd.DataFrame({
         "stage": pd.array(np.where(np.isfinite(st), st, np.nan), dtype="Float64").astype("Int64"),
@@ -1809,7 +1834,7 @@ def track_units(
     ev_u = np.select([stage_u == 1, stage_u == 2, stage_u == 3, stage_u == 4], [first_u, bp_u, s2_u, pk_u],
                      default=np.nan)
     status_u = planning_status(stage_u)
-    regime_u = np.where(stage_u >= 2, bp_u, np.nan)
+    regime_u = regime_start_index(stage_u, bp_u, s2_u, pk_u, as_of_i)
     evidence = _unit_evidence(units, stage_u, by_wells, use_cum, fw, sum_stage, full, wtab, prod, wcodes,
                               wname_idx, unit_of, pmi, oil, out["stage_evidence"].to_numpy(object), app)
     table = pd.DataFrame({

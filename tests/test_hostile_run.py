@@ -236,17 +236,21 @@ def test_volumes_non_negative_cumulative_monotone_eur_at_least_cumulative(hostil
 
 
 def test_spike_month_down_weighted_and_b_barely_moves(hostile):
-    """One month at 10x the decline is down-weighted and moves b by at most 0.05.
+    """One month at 10x the decline is down-weighted and moves b by at most 0.1, EUR by 2 %.
 
-    Tolerance: 0.05 in b is well inside the spread of b between equally good fits of a
-    60-month history (b is weakly determined; common practice quotes b to one decimal), yet a
-    10x month is a log residual of ln 10 = 2.3 against 0 elsewhere, so a fit that did not
-    down-weight it would be pulled towards it. Measured with this file: |delta b| ~ 0.001.
+    The two wells are past the GOR peak, so the fit window is the post-peak regime (33 months
+    here, ``core.stages.REGIME_MIN_MONTHS``). Tolerance: 0.1 in b is the precision b is quoted
+    to (common practice) and inside the spread of b between equally good fits of a 33-month
+    history, yet a 10x month is a log residual of ln 10 = 2.3 against 0 elsewhere, so a fit
+    that did not down-weight it would be pulled far towards it. Measured with this file:
+    |delta b| ~ 0.07, EUR within 1.2 % (over the whole 60-month history: |delta b| ~ 0.001).
     """
     w = _wells(hostile)
     assert w.loc["SPIKE", "fit_months_down_weighted"] >= 1
     assert w.loc["SPIKE-BASE", "fit_months_down_weighted"] == 0
     assert w.loc["SPIKE", "model"] == w.loc["SPIKE-BASE", "model"]
+    assert w.loc["SPIKE", "fit_start"] == w.loc["SPIKE-BASE", "fit_start"]
     b_spike, b_base = float(w.loc["SPIKE", "b"]), float(w.loc["SPIKE-BASE", "b"])
     assert math.isfinite(b_spike) and math.isfinite(b_base)
-    assert abs(b_spike - b_base) <= 0.05
+    assert abs(b_spike - b_base) <= 0.1
+    assert w.loc["SPIKE", "eur_oil_bbl"] == pytest.approx(w.loc["SPIKE-BASE", "eur_oil_bbl"], rel=0.02)

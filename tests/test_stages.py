@@ -14,8 +14,10 @@ import pytest
 from core.stages import (
     PLANNING_RULES,
     PLANNING_STATUSES,
+    REGIME_MIN_MONTHS,
     crossing_from_surveys,
     planning_status,
+    regime_start_index,
     track_units,
     track_wells,
     unit_monthly,
@@ -86,6 +88,20 @@ def test_track_wells_contract_columns_and_types():
     assert set(out["planning_status"]) <= set(PLANNING_STATUSES)
 
 
+def test_regime_start_is_the_latest_boundary_with_enough_months():
+    # Our rule (common practice, see core.stages.REGIME_MIN_MONTHS): the fit starts at the
+    # latest stage boundary passed at least REGIME_MIN_MONTHS months before the as-of month.
+    k = REGIME_MIN_MONTHS
+    as_of = 500
+    stage = np.array([1, 2, 3, 3, 4, 4, 4, np.nan])
+    bp = np.array([np.nan, 400, 300, 300, 200, 200, 200, 300])
+    s2 = np.array([np.nan, np.nan, as_of - k, as_of - k + 1, 250, 250, as_of - k + 1, np.nan])
+    pk = np.array([np.nan, np.nan, np.nan, np.nan, as_of - k, as_of - k + 1, as_of - 5, np.nan])
+    got = regime_start_index(stage, bp, s2, pk, as_of)
+    want = np.array([np.nan, 400, as_of - k, 300, as_of - k, 250, 200, np.nan])
+    np.testing.assert_array_equal(got, want)
+
+
 def test_four_clean_wells_get_their_stages_and_dates():
     # Stand-in shapes with known dates (see _shape); 5 % noise, GOR-only rules (no header).
     n = 150
@@ -106,7 +122,12 @@ def test_four_clean_wells_get_their_stages_and_dates():
         if st >= 2:
             bp = start + pd.DateOffset(months=tb)
             assert abs((r["bubble_point_date"] - bp).days) <= 4 * 31, w
-            assert r["regime_start"] == r["bubble_point_date"]
+            # the fit starts at the latest stage boundary passed at least REGIME_MIN_MONTHS
+            # before the last month (our rule, common practice), else at the bubble point
+            last = prod.loc[prod["well_id"] == w, "month"].max()
+            later = [r[c] for c in ("stage2_end_date", "gor_peak_date")[: st - 2]
+                     if pd.notna(r[c]) and (last.year - r[c].year) * 12 + last.month - r[c].month >= REGIME_MIN_MONTHS]
+            assert r["regime_start"] == (later[-1] if later else r["bubble_point_date"]), w
         else:
             assert pd.isna(r["regime_start"])
         if st >= 3:
