@@ -554,7 +554,10 @@ def _lm_batch(t, y, w0, theta0, free, *, b_max, loss, scale, max_iter, tol):
     Minimises, per well, 0.5 s^2 sum w0 rho((r/s)^2) with r the log-rate residual, with
     exact analytic derivatives, per-well damping (Marquardt scaling by diag(J^T W J)) and
     bounds by projection with an active set; one model evaluation per iteration (residuals
-    and Jacobian together); wells leave the batch as they converge.
+    and Jacobian together, in cache-sized blocks of rows); wells leave the batch as they
+    converge. When b is held at 0 or 1 for every well of the call, J^T W J carries the robust
+    loss's curvature (rho' + 2 rho'' z, Triggs et al. 2000, as scipy.optimize.least_squares);
+    otherwise the IRLS weights rho'.
     Returns theta, robust cost, final IRLS weights (n, m), residuals, iterations, converged.
     """
     n, m = t.shape
