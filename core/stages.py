@@ -1231,13 +1231,18 @@ def planning_status(stage) -> np.ndarray:
     return out
 
 
-def _months_to_peak(res: pd.DataFrame, analog: pd.DataFrame, as_of: int) -> np.ndarray:
+def months_to_peak_from_analogues(res: pd.DataFrame, analog: pd.DataFrame, as_of: int) -> np.ndarray:
     """Months left to the GOR peak from analogue durations (wells that passed their peak).
 
     Stage 2: median (peak - bubble-point crossing) of the analogues minus months since the
     crossing; stage 3: median (peak - stage-2 end) minus months since the stage-2 end;
     floor 0 (the peak is due). Stage 4: 0. Stage 1 or fewer than ``MIN_ANALOGUES``
     analogues: NaN.
+
+    ``res`` has per well ``stage`` and the event month indices ``bp_mi``, ``s2_mi`` (months
+    since January of year 0, float, NaN when not reached); ``analog`` has ``pk_mi``, ``bp_mi``,
+    ``s2_mi`` of the analogue wells; ``as_of`` is the as-of month index. Returns months [mo].
+    Public so that a run by blocks of wells (``core.streamed``) uses the field's analogues.
     """
     d_bp = (analog["pk_mi"] - analog["bp_mi"]).dropna()
     d_s2 = (analog["pk_mi"] - analog["s2_mi"]).dropna()
@@ -1356,7 +1361,7 @@ def _finish(res: pd.DataFrame, attrs: pd.DataFrame, as_of: int, analog: pd.DataF
     ev = _event_mi(res)
     since = as_of - ev.to_numpy(float)
     analog_tab = res[res["passed"].astype(bool)] if analog is None else analog
-    to_pk = _months_to_peak(res, analog_tab, as_of)
+    to_pk = months_to_peak_from_analogues(res, analog_tab, as_of)
     st = res["stage"].to_numpy(float)
     regime = regime_start_index(st, res["bp_mi"].to_numpy(float), res["s2_mi"].to_numpy(float),
                                 res["pk_mi"].to_numpy(float), as_of)

@@ -901,7 +901,7 @@ def _units_stage(unit_files: list[Path], homes: list[pd.Series], stages: pd.Data
 def field_months_to_peak(stages: pd.DataFrame, as_of: pd.Timestamp) -> pd.Series:
     """``months_to_gor_peak_est`` of every well from the field's analogue wells (the wells
     past their GOR peak), as the stage tracker makes it on the whole field
-    (``core.stages._months_to_peak``): a block's own analogues would give other medians."""
+    (``core.stages.months_to_peak_from_analogues``, public for this): a block's own analogues would give other medians."""
     from core import stages as S
 
     def mi(c: str) -> np.ndarray:
@@ -913,5 +913,5 @@ def field_months_to_peak(stages: pd.DataFrame, as_of: pd.Timestamp) -> pd.Series
                         "bp_mi": mi("bubble_point_date"), "s2_mi": mi("stage2_end_date"), "pk_mi": mi("gor_peak_date")})
     passed = stages["passed_gor_peak"].fillna(False).astype(bool).to_numpy()
     as_of_i = as_of.year * 12 + as_of.month - 1
-    v = S._months_to_peak(res, res.loc[passed, ["pk_mi", "bp_mi", "s2_mi"]], as_of_i)
+    v = S.months_to_peak_from_analogues(res, res.loc[passed, ["pk_mi", "bp_mi", "s2_mi"]], as_of_i)
     return pd.Series(v, index=stages["well_id"].astype(str).to_numpy())
