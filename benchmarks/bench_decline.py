@@ -285,7 +285,7 @@ def main(argv=None) -> int:
     ap.add_argument("--wells", type=int, default=10_000)
     ap.add_argument("--big", action="store_true",
                     help="100,000 wells end to end, streamed by blocks of wells (see --block)")
-    ap.add_argument("--block", type=int, default=2500, help="wells per block of the --big run")
+    ap.add_argument("--block", type=int, default=5000, help="wells per block of the --big run")
     ap.add_argument("--subset", type=int, default=300, help="wells timed with the per-well approach")
     ap.add_argument("--repeat", type=int, default=5, help="runs of the fitting-only timing (median and min printed)")
     ap.add_argument("--workers", type=int, default=None)
