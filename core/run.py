@@ -1039,7 +1039,8 @@ def _assemble_wells(prod, header, report, fluids, stages, fits, fsummary, actual
     w["fitted_model"] = _col(fs, "fitted_model", default="").where(ok, "").fillna("")
     w["gas_method"] = _col(fs, "gas_method", default="").fillna("")
     w["fit_status"] = _col(f_oil, "status", default="").reindex(ids).map(_status_text)
-    w["fit_regime_source"] = _col(f_oil, "regime_source", default="").reindex(ids).fillna("")
+    w["fit_regime_source"] = _regime_source_text(_col(f_oil, "regime_source", default="").reindex(ids).fillna(""),
+                                                 stg.reindex(ids))
     w["fit_months_used"] = _finite_or_nan(_col(f_oil, "n_months_used").reindex(ids))
     w["fit_months_excluded"] = _finite_or_nan(_col(f_oil, "n_months_excluded").reindex(ids))
     w["fit_months_down_weighted"] = _finite_or_nan(_col(f_oil, "n_months_down_weighted").reindex(ids))
@@ -1074,6 +1075,28 @@ def _assemble_wells(prod, header, report, fluids, stages, fits, fsummary, actual
     w["status"] = status.to_numpy()
     out = w.reset_index()
     return out[WELLS_COLUMNS + WELLS_EXTRA_COLUMNS]
+
+
+#: Stage-tracker dates a regime start can be, latest boundary first (``core.stages.regime_start_index``).
+_REGIME_EVENTS = (("gor_peak_date", "GOR peak"), ("stage2_end_date", "GOR rise above Rsi"),
+                  ("bubble_point_date", "bubble-point crossing"))
+
+
+def _regime_source_text(source: pd.Series, stg: pd.DataFrame) -> pd.Series:
+    """The fit's regime source, naming the stage boundary when the stage tracker set it
+    (e.g. ``stage tracker: GOR peak``)."""
+    out = source.astype(object).copy()
+    if "regime_start" not in stg.columns:
+        return out
+    rs = pd.to_datetime(stg["regime_start"], errors="coerce").to_numpy()
+    name = np.full(len(out), "", dtype=object)
+    for col, label in reversed(_REGIME_EVENTS):  # the latest boundary wins when dates coincide
+        if col in stg.columns:
+            d = pd.to_datetime(stg[col], errors="coerce").to_numpy()
+            name = np.where(pd.notna(d) & (d == rs), label, name)
+    tracker = (out == "stage tracker").to_numpy() & (name != "")
+    out[tracker] = [f"stage tracker: {n}" for n in name[tracker]]
+    return out
 
 
 def _assemble_monthly(prod: pd.DataFrame, fmonthly: pd.DataFrame, actual: pd.DataFrame) -> pd.DataFrame:

@@ -404,6 +404,26 @@ def sample_base():
     return load, s, run_field(load, settings=s)
 
 
+def test_fit_regime_source_names_the_stage_boundary_the_fit_starts_after(sample_base):
+    """The fit window starts at or after the stage tracker's regime start, and the wells table
+    names which boundary that is (GOR peak, GOR rise above Rsi, bubble-point crossing)."""
+    _, _, res = sample_base
+    w = res.wells.set_index("well_id")
+    stg = res.stages.set_index("well_id")
+    src = w["fit_regime_source"].astype(str)
+    named = src[src.str.startswith("stage tracker: ")]
+    assert len(named) >= 10  # the sample field's staged oil wells
+    col = {"GOR peak": "gor_peak_date", "GOR rise above Rsi": "stage2_end_date",
+           "bubble-point crossing": "bubble_point_date"}
+    seen = set()
+    for wid, text in named.items():
+        event = text.removeprefix("stage tracker: ")
+        seen.add(event)
+        assert stg.loc[wid, col[event]] == stg.loc[wid, "regime_start"], wid
+        assert w.loc[wid, "fit_start"] >= stg.loc[wid, "regime_start"], wid
+    assert {"GOR peak", "bubble-point crossing"} <= seen
+
+
 def test_rerun_wells_equals_the_full_run_and_an_override_removed(sample_base):
     from core.decline import WellOverride
     from core.run import rerun_wells
