@@ -1521,7 +1521,7 @@ def fit_facts(row: pd.Series) -> pd.DataFrame:
     """The fit's parameters and quality figures from the wells table, as label/value rows."""
     labels = [
         ("model", "model"), ("fit window start", "fit_start"), ("fit window end", "fit_end"),
-        ("qi at fit start [bbl/d]", "qi_bopd"), ("di, nominal [1/yr]", "di_annual_nominal"), ("b", "b"),
+        ("fit window starts after", "fit_regime_source"), ("qi at fit start [bbl/d]", "qi_bopd"), ("di, nominal [1/yr]", "di_annual_nominal"), ("b", "b"),
         ("terminal decline, effective [1/yr]", "terminal_decline_annual_effective"),
         ("economic limit [bbl/d]", "econ_limit_bopd"), ("months used", "fit_months_used"),
         ("months excluded", "fit_months_excluded"), ("months down-weighted", "fit_months_down_weighted"),

@@ -227,6 +227,9 @@ def test_well_page_shows_core_numbers_and_an_override_refits_it(sample_run):
     charts = [json.loads(c.proto.spec) for c in at.get("plotly_chart")]
     names = {t.get("name") for c in charts for t in c["data"]}
     assert {"actual oil", "producing GOR"} <= names
+    facts = dict(_frame_with(at, "item")[["item", "value"]].itertuples(index=False))
+    assert facts["fit window starts after"] == str(row["fit_regime_source"])
+    assert facts["fit window start"] == row["fit_start"].strftime("%Y-%m")
     # Apply an override: fixed b = 0.3, with a reason.
     at.checkbox(key="ov_fix_b").check()
     at.number_input(key="ov_b").set_value(0.3)
