@@ -394,6 +394,36 @@ def _decode(raw: bytes, name: str, messages: list) -> tuple[str, str]:
         return raw.decode("latin-1"), "latin-1"
 
 
+def _head_table(text: str, name: str, mapping) -> tuple[str, list[list[str]], int, list[str]]:
+    """Delimiter, the first lines split by it, the header line index and the header of a
+    decoded delimited text (the first ``HEADER_SCAN_ROWS`` + 50 lines are read).
+
+    The header line index counts blank lines too (csv.reader yields [] for them). Raises
+    :class:`InputError` when there are no text lines or no header of two or more columns.
+    """
+    head_lines: list[str] = []
+    pos = 0
+    while len(head_lines) < HEADER_SCAN_ROWS + 50 and pos < len(text):
+        j = text.find("\n", pos)
+        j = len(text) if j < 0 else j
+        head_lines.append(text[pos:min(j, pos + MAX_HEADER_BYTES)].rstrip("\r"))
+        pos = j + 1
+    non_blank = [ln for ln in head_lines if ln.strip()]
+    if not non_blank:
+        raise InputError(f"{name}: the file has no text lines (only blanks)")
+    delim = _sniff_delimiter(non_blank)
+    try:
+        sample = list(csv.reader(head_lines, delimiter=delim))
+    except csv.Error as exc:
+        raise InputError(f"{name}: the first lines cannot be read as {delim!r}-delimited text ({exc})") from None
+    hdr = _find_header(sample, mapping)
+    header = _dedupe(sample[hdr]) if sample[hdr] else []
+    if len(header) < 2:
+        raise InputError(f"{name}: no table header found (the first line has {len(header)} column(s) "
+                         f"with delimiter {delim!r})")
+    return delim, sample, hdr, header
+
+
 def _sniff_delimiter(lines: list[str]) -> str:
     best, best_score = ",", (-1, -1)
     for d in (",", ";", "\t", "|"):
@@ -475,27 +505,7 @@ def _read_csv(raw: bytes, name: str, *, mapping: Mapping[str, str] | None,
     if first_len > MAX_HEADER_BYTES:
         raise InputError(f"{name}: the first line is {first_len:,} characters long with no line break "
                          f"in the first {MAX_HEADER_BYTES:,}; not a delimited table")
-    head_lines: list[str] = []
-    pos = 0
-    while len(head_lines) < HEADER_SCAN_ROWS + 50 and pos < len(text):
-        j = text.find("\n", pos)
-        j = len(text) if j < 0 else j
-        head_lines.append(text[pos:min(j, pos + MAX_HEADER_BYTES)].rstrip("\r"))
-        pos = j + 1
-    non_blank = [ln for ln in head_lines if ln.strip()]
-    if not non_blank:
-        raise InputError(f"{name}: the file has no text lines (only blanks)")
-    delim = _sniff_delimiter(non_blank)
-    try:
-        sample = list(csv.reader(head_lines, delimiter=delim))
-    except csv.Error as exc:
-        raise InputError(f"{name}: the first lines cannot be read as {delim!r}-delimited text ({exc})") from None
-    hdr = _find_header(sample, mapping)
-    # header line index hdr counts blank lines too (csv.reader yields [] for them)
-    header = _dedupe(sample[hdr]) if sample[hdr] else []
-    if len(header) < 2:
-        raise InputError(f"{name}: no table header found (the first line has {len(header)} column(s) "
-                         f"with delimiter {delim!r})")
+    delim, sample, hdr, header = _head_table(text, name, mapping)
     if hdr:
         messages.append(f"{name}: {hdr} line(s) above the header skipped (header on line {hdr + 1})")
     dec = _decimal_comma(sample[hdr + 1:], delim)
@@ -590,26 +600,7 @@ def csv_layout(head: bytes, name: str, *, mapping: Mapping[str, str] | None = No
     """
     messages: list[str] = []
     text, enc = _decode(head, name, messages)
-    head_lines: list[str] = []
-    pos = 0
-    while len(head_lines) < HEADER_SCAN_ROWS + 50 and pos < len(text):
-        j = text.find("\n", pos)
-        j = len(text) if j < 0 else j
-        head_lines.append(text[pos:min(j, pos + MAX_HEADER_BYTES)].rstrip("\r"))
-        pos = j + 1
-    non_blank = [ln for ln in head_lines if ln.strip()]
-    if not non_blank:
-        raise InputError(f"{name}: the file has no text lines (only blanks)")
-    delim = _sniff_delimiter(non_blank)
-    try:
-        sample = list(csv.reader(head_lines, delimiter=delim))
-    except csv.Error as exc:
-        raise InputError(f"{name}: the first lines cannot be read as {delim!r}-delimited text ({exc})") from None
-    hdr = _find_header(sample, mapping)
-    header = _dedupe(sample[hdr]) if sample[hdr] else []
-    if len(header) < 2:
-        raise InputError(f"{name}: no table header found (the first line has {len(header)} column(s) "
-                         f"with delimiter {delim!r})")
+    delim, sample, hdr, header = _head_table(text, name, mapping)
     dec = _decimal_comma(sample[hdr + 1:], delim)
     text_cols = set(_text_fields_for(mapping, unit_column)(header))
     dtype = {c: str for c in header if c in text_cols}
