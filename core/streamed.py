@@ -165,6 +165,24 @@ class Spill:
         return self.work / f"block_{b:05d}.rows"
 
 
+def _pack(items: list, size_of: Callable[[Any], int], cap: int) -> list[list]:
+    """Items in their order, packed into consecutive groups of total size at most ``cap``
+    (an item larger than ``cap`` forms a group of its own)."""
+    groups: list[list] = []
+    cur: list = []
+    n = 0
+    for it in items:
+        k = size_of(it)
+        if cur and n + k > cap:
+            groups.append(cur)
+            cur, n = [], 0
+        cur.append(it)
+        n += k
+    if cur:
+        groups.append(cur)
+    return groups
+
+
 def _read_kw(layout: Any, dtype: dict) -> dict:
     return dict(sep=layout.delimiter, header=None, names=layout.header, dtype=dtype, keep_default_na=False,
                 na_values=[""], skip_blank_lines=False, low_memory=False, quotechar='"',
@@ -354,17 +372,7 @@ def split_file(
     else:
         header_report_of_block = {}
     # blocks: the sub-blocks of each unit in turn (units sorted), packed up to block_wells wells
-    blocks: list[list[int]] = []
-    cur: list[int] = []
-    n = 0
-    for sb in sorted(range(len(count)), key=lambda x: (unit_of_sub[x], x)):
-        if cur and n + count[sb] > block_wells:
-            blocks.append(cur)
-            cur, n = [], 0
-        cur.append(sb)
-        n += count[sb]
-    if cur:
-        blocks.append(cur)
+    blocks = _pack(sorted(range(len(count)), key=lambda x: (unit_of_sub[x], x)), lambda sb: count[sb], block_wells)
     return Spill(work=work, name=name, layout=layout, mapping=mp, n_blocks=len(blocks), blocks=blocks,
                  rows_in_block=rows_in_block,
                  extra=extra, object_cols=object_cols, slow=slow, encoding=encoding, sha256=sha.hexdigest(),
@@ -860,17 +868,7 @@ def _units_stage(unit_files: list[Path], homes: list[pd.Series], stages: pd.Data
         for k, v in u.items():
             sizes[str(k)] = sizes.get(str(k), 0) + int(v)
     all_units = sorted(sizes)
-    batches: list[list[str]] = []
-    cur: list[str] = []
-    n = 0
-    for u in all_units:
-        if cur and n + sizes[u] > UNIT_BATCH_ROWS:
-            batches.append(cur)
-            cur, n = [], 0
-        cur.append(u)
-        n += sizes[u]
-    if cur:
-        batches.append(cur)
+    batches = _pack(all_units, sizes.__getitem__, UNIT_BATCH_ROWS)
     ucat = pd.CategoricalDtype(all_units)
     tables = []
     for units in batches:
