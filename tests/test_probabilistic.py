@@ -141,18 +141,23 @@ def test_a_well_does_not_depend_on_the_other_wells(field, result):
     assert_allclose(a["oil_next_24m_bbl_p10"], b["oil_next_24m_bbl_p10"], rtol=1e-9)
 
 
+def _noise_free_exponential_well(qi: float, di: float) -> pd.DataFrame:
+    """48 months of an exact Arps (1945) exponential well (monthly volumes from the closed-form
+    cumulative), loaded; volume / days_on is the rate at about mid-month."""
+    months = pd.date_range("2020-01-01", periods=48, freq="MS")
+    edges = np.r_[0.0, np.cumsum(months.days_in_month.to_numpy())] / DAYS_PER_YEAR
+    oil = np.diff(arps_cumulative(edges, qi, di, 0.0))
+    raw = pd.DataFrame({"well_id": "EX-1", "month": months, "oil_bbl": oil,
+                        "days_on": months.days_in_month.to_numpy(), "unit": "U1"})
+    return load_production(raw, file_name="ex").production
+
+
 def test_noiseless_exponential_well_matches_closed_form():
     # A noise-free exponential decline: every bootstrap sample refits the same curve, so
     # P90 = P50 = P10 = the deterministic remaining volume, which is the Arps (1945)
     # exponential cumulative from the forecast start to the economic limit (closed form).
     qi, di = 300.0, 0.4  # bbl/d, 1/yr
-    months = pd.date_range("2020-01-01", periods=48, freq="MS")
-    edges = np.r_[0.0, np.cumsum(months.days_in_month.to_numpy())] / DAYS_PER_YEAR
-    oil = np.diff(arps_cumulative(edges, qi, di, 0.0))
-    # volume / days_on equals the rate at (about) mid-month; refits return the same exponential
-    raw = pd.DataFrame({"well_id": "EX-1", "month": months, "oil_bbl": oil,
-                        "days_on": months.days_in_month.to_numpy(), "unit": "U1"})
-    prod = load_production(raw, file_name="ex").production
+    prod = _noise_free_exponential_well(qi, di)
     st = DeclineSettings(econ_limit_bopd=20.0, streams=("oil",), loss="linear")
     ff = fit_field(prod, settings=st)
     res = probabilistic_field(prod, ff, settings=st, samples=40, seed=1, level_error=None,
@@ -264,12 +269,7 @@ def test_trend_error_never_takes_the_decline_below_the_terminal_decline():
     # the forecast start is floored at the terminal decline d_lim, so every sample is the
     # Arps (1945) exponential at d_lim: Np = (q0 - q_el)/d_lim x 365.25 (closed form).
     qi, di = 300.0, 0.4  # bbl/d, 1/yr
-    months = pd.date_range("2020-01-01", periods=48, freq="MS")
-    edges = np.r_[0.0, np.cumsum(months.days_in_month.to_numpy())] / DAYS_PER_YEAR
-    oil = np.diff(arps_cumulative(edges, qi, di, 0.0))
-    raw = pd.DataFrame({"well_id": "EX-1", "month": months, "oil_bbl": oil,
-                        "days_on": months.days_in_month.to_numpy(), "unit": "U1"})
-    prod = load_production(raw, file_name="ex").production
+    prod = _noise_free_exponential_well(qi, di)
     st = DeclineSettings(econ_limit_bopd=20.0, streams=("oil",), loss="linear", horizon_years=50.0)
     ff = fit_field(prod, settings=st)
     big = LevelCalibration(np.zeros(5), 0.0, 0, float("nan"), float("nan"), None, 24, "test",
