@@ -1303,6 +1303,31 @@ def sorted_well_codes(production: pd.DataFrame):
     return df, pd.Index(uniques), codes, mi
 
 
+def _joined_month_labels(w: np.ndarray, mi: np.ndarray, out: np.ndarray) -> np.ndarray:
+    """Per well, its months (integer months, in the order given) as "YYYY-MM" joined by
+    commas; wells without months keep ``out``'s value.
+
+    The labels of the span's months are made once and written as fixed-width bytes; each
+    well's text is one slice of that buffer (the same text as joining each well's labels).
+    """
+    out = out.copy()
+    order = np.argsort(w, kind="stable")
+    w, mi = w[order], mi[order]
+    lo, hi = int(mi.min()), int(mi.max())
+    if not (-11_640 <= lo and hi < 96_000):  # years outside 1000-9969: four-digit years not assured
+        lab = pd.Series(pd.DatetimeIndex(_int_to_month(mi)).strftime("%Y-%m"))
+        joined = lab.groupby(w).agg(",".join)
+        out[joined.index.to_numpy()] = joined.to_numpy()
+        return out
+    tab = pd.DatetimeIndex(_int_to_month(np.arange(lo, hi + 1))).strftime("%Y-%m,")
+    tab = np.array([t.encode("ascii") for t in tab], dtype="S8").view(np.uint8).reshape(-1, 8)
+    buf = tab[mi - lo].tobytes()
+    seg = np.flatnonzero(np.r_[True, w[1:] != w[:-1]])
+    ends = np.r_[seg[1:], w.size]
+    out[w[seg]] = [buf[8 * a:8 * b - 1].decode("ascii") for a, b in zip(seg.tolist(), ends.tolist())]
+    return out
+
+
 def _median3(a: np.ndarray, b: np.ndarray, c: np.ndarray) -> np.ndarray:
     """Element-wise median of three arrays (NaN propagates)."""
     return np.maximum(np.minimum(a, b), np.minimum(np.maximum(a, b), c))
@@ -1675,9 +1700,7 @@ def _fit_stream(stream, wells, wcode, mi_all, rate, days_on, uptime, dim, rs_sta
     n_dw = np.bincount(dw_w, minlength=n_wells)
     dw_text = np.full(n_wells, "", dtype=object)
     if dw_w.size:
-        lab = pd.Series(pd.DatetimeIndex(_int_to_month(dw_m)).strftime("%Y-%m"))
-        joined = lab.groupby(dw_w).agg(",".join)
-        dw_text[joined.index.to_numpy()] = joined.to_numpy()
+        dw_text = _joined_month_labels(dw_w, dw_m, dw_text)
     # ---- chosen parameters
     qi = np.full(n_wells, np.nan)
     di = np.full(n_wells, np.nan)
@@ -1765,18 +1788,33 @@ def _fit_stream(stream, wells, wcode, mi_all, rate, days_on, uptime, dim, rs_sta
         "n_iter": n_it,
         "override": ov_text,
     })
-    # candidates: one row per fitted well and family
-    parts = []
+    # candidates: one row per fitted well and family, sorted by well and family
+    cols = {"qi": [], "di": [], "b": [], "n_params": [], "sse_log": [], "rmse_log": [], "robust_cost": [],
+            "criterion_value": [], "converged": [], "chosen": []}
     for j, f in enumerate(MODEL_NAMES):
         th = theta[f][fw]
-        k_par = np.where(np.isfinite(fixed_b[fw]), 2, 3) if f == "hyperbolic" else np.full(fw.size, 2)
-        parts.append(pd.DataFrame({
-            "well_id": wells.to_numpy()[fw], "stream": stream, "family": f,
-            "qi": np.exp(th[:, 0]), "di": np.exp(th[:, 1]), "b": th[:, 2], "n_params": k_par,
-            "sse_log": gat[f]["sse"][fw], "rmse_log": np.sqrt(gat[f]["sse"][fw] / np.maximum(n_used[fw], 1)),
-            "robust_cost": gat[f]["cost"][fw],
-            "criterion_value": crit_all[fw, j], "converged": gat[f]["converged"][fw] > 0,
-            "chosen": choice[fw] == j,
-        }))
+        cols["qi"].append(np.exp(th[:, 0]))
+        cols["di"].append(np.exp(th[:, 1]))
+        cols["b"].append(th[:, 2])
+        cols["n_params"].append(np.where(np.isfinite(fixed_b[fw]), 2, 3) if f == "hyperbolic"
+                                else np.full(fw.size, 2))
+        cols["sse_log"].append(gat[f]["sse"][fw])
+        cols["rmse_log"].append(np.sqrt(gat[f]["sse"][fw] / np.maximum(n_used[fw], 1)))
+        cols["robust_cost"].append(gat[f]["cost"][fw])
+        cols["criterion_value"].append(crit_all[fw, j])
+        cols["converged"].append(gat[f]["converged"][fw] > 0)
+        cols["chosen"].append(choice[fw] == j)
+    ids = wells.to_numpy()[fw]
+    if fw.size and list(MODEL_NAMES) == sorted(MODEL_NAMES) and wells.is_monotonic_increasing and wells.is_unique:
+        # the wells are sorted and unique (sorted_well_codes) and the family names are in
+        # sorted order: the sorted table interleaves the families per well, no sort needed
+        cands = pd.DataFrame({
+            "well_id": np.repeat(ids, len(MODEL_NAMES)), "stream": stream,
+            "family": np.tile(np.array(MODEL_NAMES, dtype=object), fw.size),
+            **{k: np.column_stack(v).reshape(-1) for k, v in cols.items()},
+        })
+        return fits, cands
+    parts = [pd.DataFrame({"well_id": ids, "stream": stream, "family": f,
+                           **{k: v[j] for k, v in cols.items()}}) for j, f in enumerate(MODEL_NAMES)]
     cands = pd.concat(parts, ignore_index=True).sort_values(["well_id", "family"], kind="stable")
     return fits, cands.reset_index(drop=True)

@@ -319,12 +319,18 @@ def _monthly_rows(wells, n_w, n_k, start_mi, start_day, end_day, uptime, cum_oil
     N = int(n_k.sum())
     rep = np.repeat(np.arange(n_w), n_k)
     offs = np.cumsum(n_k) - n_k
-    k = np.arange(N) - offs[rep]
-    m_mi = start_mi[rep] + k
-    day_lo = _mi_to_day(m_mi)
-    days_m = _mi_to_day(m_mi + 1)
-    days_m -= day_lo  # days in each month
-    hi_day = np.minimum(day_lo + days_m.astype(float), end_day[rep])
+    # each row's month as an index into a table over the forecast's span of months, so the
+    # first day, the next month's first day and the days of each month are gathered from
+    # that table instead of being computed per row (integers: the same values)
+    m_lo = int((start_mi[n_k > 0]).min()) if N else 0
+    m_hi = int((start_mi + n_k).max()) if N else 0
+    day_tab = _mi_to_day(np.arange(m_lo, m_hi + 1))
+    mrow = np.arange(N)
+    mrow += (start_mi - m_lo - offs)[rep]  # month index of each row: start + position
+    day_lo_tab = day_tab[:-1]
+    hi_day = day_tab[1:].astype(float)[mrow]  # first day of the next month
+    np.minimum(hi_day, end_day[rep], out=hi_day)
+    days_m = np.diff(day_tab).astype(float)[mrow]  # days in each month
     up = uptime[rep]
 
     first_row = np.zeros(N, dtype=bool)
@@ -364,29 +370,43 @@ def _monthly_rows(wells, n_w, n_k, start_mi, start_day, end_day, uptime, cum_oil
             rows = np.flatnonzero(sel)
             r = rep[rows]
         del sel
-        th = (hi_day[rows] - fsd[r]) / DAYS_PER_YEAR
-        np.maximum(th, tst[r], out=th)
+        # per-well factors are gathered onto the rows into one scratch buffer (np.take with
+        # out=, mode="clip": indices are in range, so no buffering), and the month-end
+        # times' buffer is reused for the previous month end: fewer fresh row-sized arrays
         n_r = r.size
+        g = np.empty(n_r)
+        th = np.take(fsd.astype(float), r, mode="clip")
+        np.subtract(hi_day[rows], th, out=th)
+        th /= DAYS_PER_YEAR
+        np.maximum(th, np.take(tst, r, out=g, mode="clip"), out=th)
         np_hi = np.empty(n_r)
-        on_h = th <= t_sw[r]
+        on_h = th <= np.take(t_sw, r, out=g, mode="clip")
         h = np.flatnonzero(on_h)
         rh = r[h]
-        x = th[h] * f_u[rh]
+        gh = g[:h.size]
+        x = th[h]
+        x *= np.take(f_u, rh, out=gh, mode="clip")
         np.log1p(x, out=x)
-        x *= f_l[rh]
+        x *= np.take(f_l, rh, out=gh, mode="clip")
         np.expm1(x, out=x)
-        x *= f_np[rh]
+        x *= np.take(f_np, rh, out=gh, mode="clip")
         np_hi[h] = x
+        del x, h, rh, gh
         tl = np.flatnonzero(~on_h)
         rt = r[tl]
-        y = th[tl] - t_sw_f[rt]
-        y *= -dl[rt]
+        gt = g[:tl.size]
+        y = th[tl]
+        y -= np.take(t_sw_f, rt, out=gt, mode="clip")
+        np.negative(np.take(dl, rt, out=gt, mode="clip"), out=gt)
+        y *= gt
         np.expm1(y, out=y)
-        y *= -f_tail[rt]
-        y += np_sw[rt]
+        np.negative(np.take(f_tail, rt, out=gt, mode="clip"), out=gt)
+        y *= gt
+        y += np.take(np_sw, rt, out=gt, mode="clip")
         np_hi[tl] = y
-        del x, y, h, rh, tl, rt, on_h, th
-        np_lo = np.empty(n_r)
+        del y, tl, rt, gt, on_h
+        np_lo = th  # the month-end times are no longer needed: their buffer takes Np at the previous month end
+        del th
         np_lo[1:] = np_hi[:-1]
         fr = first_row[rows]
         np_lo[fr] = np_st[r[fr]]
@@ -394,7 +414,8 @@ def _monthly_rows(wells, n_w, n_k, start_mi, start_day, end_day, uptime, cum_oil
         np.subtract(np_hi, np_lo, out=np_lo)
         np.maximum(np_lo, 0.0, out=np_lo)
         np_lo *= upr
-        np_hi -= np_st[r]
+        np_hi -= np.take(np_st, r, out=g, mode="clip")
+        del g
         np.maximum(np_hi, 0.0, out=np_hi)
         np_hi *= upr
         if isinstance(rows, slice):
@@ -424,11 +445,13 @@ def _monthly_rows(wells, n_w, n_k, start_mi, start_day, end_day, uptime, cum_oil
     vals[1] = gas_v
     np.divide(oil_v, days_m, out=vals[2])
     np.divide(gas_v, days_m, out=vals[3])
-    np.add(cum_oil[rep], oil_since, out=vals[4])
-    np.add(cum_gas[rep], gas_since, out=vals[5])
+    np.take(cum_oil, rep, out=vals[4], mode="clip")  # gathered in place, then added
+    vals[4] += oil_since
+    np.take(cum_gas, rep, out=vals[5], mode="clip")
+    vals[5] += gas_since
     del oil_v, gas_v, oil_since, gas_since
     monthly = pd.DataFrame(vals.T, columns=MONTHLY_COLUMNS[3:], copy=False)
     monthly.insert(0, "well_id", pd.array(wells.to_numpy(), dtype="str").take(rep))
-    monthly.insert(1, "month", (day_lo * 86_400_000_000_000).view("datetime64[ns]"))
+    monthly.insert(1, "month", (day_lo_tab * 86_400_000_000_000)[mrow].view("datetime64[ns]"))
     monthly.insert(2, "kind", pd.array(np.full(1, "forecast", dtype=object), dtype="str").take(np.zeros(N, np.intp)))
     return monthly
