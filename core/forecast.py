@@ -86,6 +86,10 @@ def _mi_to_ts(mi: np.ndarray) -> np.ndarray:
 
 
 def _stream_params(fits: pd.DataFrame, wells: pd.Index, stream: str):
+    if isinstance(wells, pd.CategoricalIndex):
+        # the table's well ids as plain values: reindexing by a categorical index compares
+        # all its categories (every well of the field when the table is a block of it)
+        wells = pd.Index(wells.to_numpy())
     f = fits[fits["stream"] == stream].drop_duplicates("well_id", keep="last").set_index("well_id").reindex(wells)
     ok = f["forecastable"].fillna(False).to_numpy(bool).copy()
     ok &= np.isfinite(f["qi"].to_numpy(float)) & np.isfinite(f["di"].to_numpy(float))
