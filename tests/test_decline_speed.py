@@ -94,3 +94,49 @@ def test_worker_processes_give_the_in_process_fits():
     two = fit_field(table, settings=DeclineSettings(workers=2, streams=("oil",), chunk_wells=16))
     pd.testing.assert_frame_equal(one.fits, two.fits, check_exact=True)
     pd.testing.assert_frame_equal(one.candidates, two.candidates, check_exact=True)
+
+
+def test_down_weighted_month_labels_match_pandas_join():
+    # Reference: pandas strftime("%Y-%m") joined with "," per well (groupby, sorted wells,
+    # months in the order given), the plain way; both the byte-buffer path and the fallback
+    # for months outside the four-digit-year span
+    rng = np.random.default_rng(5)
+    for lo, hi in ((300, 700), (-12_000, -11_000)):
+        w = rng.integers(0, 400, 5_000)
+        mi = rng.integers(lo, hi, w.size)
+        out = dec._joined_month_labels(w, mi, np.full(450, "", dtype=object))
+        lab = pd.Series(pd.DatetimeIndex(dec._int_to_month(mi)).strftime("%Y-%m"))
+        ref = lab.groupby(w).agg(",".join)
+        assert list(out[ref.index.to_numpy()]) == list(ref.to_numpy())
+        untouched = np.setdiff1d(np.arange(450), ref.index.to_numpy())
+        assert untouched.size and all(out[untouched] == "")
+
+
+def test_candidates_come_sorted_by_well_and_family():
+    # Reference: pandas sort_values(["well_id", "family"]) of the candidates table, for a
+    # table whose wells are not in name order
+    table = _field(30, 8)
+    names = np.array([f"Z-{i:03d}" for i in np.random.default_rng(8).permutation(30)])
+    table["well_id"] = names[table["well_id"].str[2:].astype(int)]
+    cands = fit_field(table, settings=DeclineSettings(workers=1, streams=("oil",))).candidates
+    ref = cands.sort_values(["well_id", "family"], kind="stable").reset_index(drop=True)
+    pd.testing.assert_frame_equal(cands, ref, check_exact=True)
+    assert len(cands) == 3 * 30
+
+
+def test_forecast_of_a_block_with_categorical_ids_equals_plain_ids():
+    # Regression against the same wells with plain string ids: a block of a larger field
+    # whose well_id is categorical (unused categories included) forecasts the same
+    from core.forecast import forecast_field
+
+    table = _field(25, 9)
+    st = DeclineSettings(workers=1, streams=("oil",), econ_limit_bopd=2.0)
+    table["oil_bbl"] = table["oil_rate_bbl_d"] * table["days_on"]
+    cat = table.copy()
+    cats = pd.Index([f"B-{i:03d}" for i in range(400)])
+    cat["well_id"] = pd.Categorical(table["well_id"], categories=cats)
+    s1, m1 = forecast_field(fit_field(table, settings=st), table, settings=st, monthly=True)
+    s2, m2 = forecast_field(fit_field(cat, settings=st), cat, settings=st, monthly=True)
+    pd.testing.assert_frame_equal(s1, s2, check_exact=True)
+    pd.testing.assert_frame_equal(m1, m2, check_exact=True)
+    assert (s1["remaining_oil_bbl"] > 0).all()
