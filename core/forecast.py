@@ -12,7 +12,8 @@ Method
   365.25 d.
 * Calendar-day volumes: producing-day rate x the well's recent uptime, the share of
   calendar days produced (sum days_on / sum days_in_month over its last
-  ``uptime_months`` producing months).
+  ``uptime_months`` months with days on; a month with days on but neither oil nor gas adds
+  its calendar days but no producing days).
 * Monthly volume = uptime x (Np(t_end of month) - Np(t_start of month)) from the closed-form
   cumulative (exact integral of the rate over the calendar month, not rate x days).
 * End: the month in which the calendar-day oil rate reaches the economic limit (volume of
@@ -183,8 +184,9 @@ def _forecast(fits, production, settings, as_of, monthly, gas_limit=None):
         lastrow = np.r_[code[1:] != code[:-1], True]  # rows sorted by well and month
         last_mi[code[lastrow]] = mi[lastrow]
     has_hist = np.isfinite(last_mi)
-    # recent uptime and GOR over the last `uptime_months` producing months
-    prod_rows = np.flatnonzero((don > 0) & ((oil > 0) | (gas > 0)))
+    # recent uptime and GOR over the last `uptime_months` months on production (days on > 0);
+    # days of a month on production that gave no oil and no gas count as down time
+    prod_rows = np.flatnonzero(don > 0)
     pc = code[prod_rows]
     cnt = np.bincount(pc, minlength=n_w)
     first = np.r_[True, pc[1:] != pc[:-1]] if pc.size else np.zeros(0, bool)
@@ -192,7 +194,8 @@ def _forecast(fits, production, settings, as_of, monthly, gas_limit=None):
     from_end = cnt[pc] - 1 - (np.arange(pc.size) - start)
     rec = prod_rows[from_end < st.uptime_months]
     rc = code[rec]
-    s_don = np.bincount(rc, weights=np.minimum(don[rec], dim[rec]), minlength=n_w)
+    gave = (oil[rec] > 0) | (gas[rec] > 0)
+    s_don = np.bincount(rc, weights=np.where(gave, np.minimum(don[rec], dim[rec]), 0.0), minlength=n_w)
     s_dim = np.bincount(rc, weights=dim[rec], minlength=n_w)
     uptime = np.where(s_dim > 0, s_don / np.where(s_dim > 0, s_dim, 1.0), 1.0)
     uptime = np.clip(uptime, 1e-3, 1.0)

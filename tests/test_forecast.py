@@ -119,6 +119,28 @@ def test_uptime_scales_volumes_and_economic_limit():
     assert sh.econ_limit_date.iloc[0] < sf.econ_limit_date.iloc[0]
 
 
+def test_months_on_without_volumes_count_as_down_time():
+    # Uptime = producing days / calendar days over the last 12 months on production (our
+    # rule, common practice for calendar-day forecasts). Three of the last twelve months
+    # report full days on but no oil and no gas: those days produced nothing, so the uptime
+    # is 9/12 of the calendar days (with their own month lengths), not 1.
+    fits, prod = one_well(300.0, 0.4, 0.0, n_hist=24)
+    zero = prod.index[-12:][[2, 5, 9]]
+    prod.loc[zero, ["oil_bbl", "gas_mcf"]] = 0.0
+    st = DeclineSettings(econ_limit_bopd=20.0)
+    sh, mh = forecast_field(fits, prod, settings=st)
+    last12 = prod.iloc[-12:]
+    want = last12["days_in_month"].drop(zero).sum() / last12["days_in_month"].sum()
+    assert_allclose(sh.uptime_fraction.iloc[0], want, rtol=1e-12)
+    sf, mf = forecast_field(*one_well(300.0, 0.4, 0.0, n_hist=24), settings=st)
+    assert_allclose(mh.oil_bbl.iloc[0], want * mf.oil_bbl.iloc[0], rtol=1e-12)
+    # a shut-in month (no days on) is not a month on production: it leaves the window
+    fits2, prod2 = one_well(300.0, 0.4, 0.0, n_hist=24)
+    prod2.loc[zero, ["oil_bbl", "gas_mcf", "days_on"]] = 0.0
+    s2, _ = forecast_field(fits2, prod2, settings=st)
+    assert_allclose(s2.uptime_fraction.iloc[0], 1.0, rtol=1e-12)
+
+
 def test_economic_inputs_and_gas():
     econ = EconomicInputs(oil_price_per_bbl=60.0, opex_per_month=3000.0, royalty=0.125)
     fits, prod = one_well(200.0, 0.3, 0.8, n_hist=6, gas_factor=2.0)
