@@ -868,7 +868,8 @@ class DeclineSettings:
     min_decline_nominal : float
         An exponential fit declining slower than this is "no decline". Default 0.005. [1/yr]
     uptime_months : int
-        Producing months whose uptime sets the forecast's calendar-day factor. Default 12.
+        Months with days on whose uptime sets the forecast's calendar-day factor (days of a month
+        with neither oil nor gas count as down time). Default 12.
     streams : tuple of str
         Streams fitted: "oil" and/or "gas". Default both.
     workers : int or None
