@@ -1033,7 +1033,10 @@ def _assemble_wells(prod, header, report, fluids, stages, fits, fsummary, actual
     w["last_oil_rate_bopd"] = _finite_or_nan(_col(act, "last_oil_rate_bopd").reindex(ids))
     w["remaining_gas_mcf"] = _finite_or_nan(_col(fs, "remaining_gas_mcf")).where(has_numbers)
     w["forecast_end_reason"] = reason.where(in_prod, "")
-    w["forecast_note"] = fc_txt.where(ok & (fc_txt != STATUS_OK).to_numpy(), "")
+    note = fc_txt.where(ok & (fc_txt != STATUS_OK).to_numpy(), "").astype(object)
+    s1 = ok & (w["stage"] == 1).fillna(False).to_numpy(bool)
+    note[s1] = [f"{t}; {STAGE1_NOTE}" if t else STAGE1_NOTE for t in note[s1]]
+    w["forecast_note"] = note
     w["uptime_fraction"] = _finite_or_nan(_col(fs, "uptime_fraction"))
     w["terminal_switch_month"] = _month_start(_col(fs, "terminal_switch_month")).where(ok)
     w["fitted_model"] = _col(fs, "fitted_model", default="").where(ok, "").fillna("")
@@ -1076,6 +1079,10 @@ def _assemble_wells(prod, header, report, fluids, stages, fits, fsummary, actual
     out = w.reset_index()
     return out[WELLS_COLUMNS + WELLS_EXTRA_COLUMNS]
 
+
+#: Forecast note of a stage-1 well (above the bubble point): its decline will change.
+STAGE1_NOTE = ("stage 1: fitted above the bubble point; the decline changes once the pressure crosses it, "
+               "so this forecast is provisional")
 
 #: Stage-tracker dates a regime start can be, latest boundary first (``core.stages.regime_start_index``).
 _REGIME_EVENTS = (("gor_peak_date", "GOR peak"), ("stage2_end_date", "GOR rise above Rsi"),

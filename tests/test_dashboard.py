@@ -215,6 +215,19 @@ def test_settings_economic_limit_from_prices_equals_core(sample_run):
     assert _metric(at, "EUR oil") == _bbl(expected.wells["eur_oil_bbl"].sum())
 
 
+def test_well_page_shows_the_forecast_note_of_a_stage_one_well(sample_run):
+    _, run = sample_run
+    w = run.wells
+    s1 = w.loc[w["stage"].eq(1).fillna(False) & (w["forecast_note"] != ""), "well_id"].astype(str)
+    assert len(s1)
+    at = _app()
+    at.switch_page("views/well.py").run()
+    at.selectbox(key="well_pick").set_value(s1.iloc[0]).run()
+    _ok(at)
+    note = w.set_index("well_id").loc[s1.iloc[0], "forecast_note"]
+    assert any(c.value == f"Forecast note: {note}" for c in at.caption)
+
+
 def test_well_page_shows_core_numbers_and_an_override_refits_it(sample_run):
     load, run = sample_run
     at = _app()

@@ -424,6 +424,19 @@ def test_fit_regime_source_names_the_stage_boundary_the_fit_starts_after(sample_
     assert {"GOR peak", "bubble-point crossing"} <= seen
 
 
+def test_stage_one_wells_carry_the_provisional_forecast_note(sample_base):
+    # Decline character changes at the bubble point (near-exponential above, hyperbolic below):
+    # a forecast fitted above it is provisional, and the wells table says so.
+    from core.run import STAGE1_NOTE
+
+    _, _, res = sample_base
+    w = res.wells
+    s1 = w["stage"].eq(1).fillna(False) & w["status"].eq("ok")
+    assert s1.sum() >= 10  # the Upper Sand and the young North Lobe wells
+    assert w.loc[s1, "forecast_note"].str.contains(STAGE1_NOTE, regex=False).all()
+    assert not w.loc[~s1, "forecast_note"].astype(str).str.contains("stage 1:", regex=False).any()
+
+
 def test_rerun_wells_equals_the_full_run_and_an_override_removed(sample_base):
     from core.decline import WellOverride
     from core.run import rerun_wells

@@ -42,6 +42,8 @@ st.caption(
     f"{charts.PLANNING_LABELS.get(row['planning_status'], row['planning_status'])}"
     + (f" · override: {row['override']}" if state.text(row.get("override")) else "")
 )
+if state.text(row.get("forecast_note")):
+    st.caption(f"Forecast note: {state.text(row.get('forecast_note'))}")
 
 st.plotly_chart(
     charts.rate_time_figure(
