@@ -679,7 +679,7 @@ def probabilistic_field(
     })
     n_det = int((~boot).sum())
     if n_det:
-        messages.append(f"{n_det} wells kept deterministic (no oil decline fit to resample)")
+        messages.append(f"{n_det} well{'' if n_det == 1 else 's'} kept deterministic (no oil decline fit to resample)")
     rule = f"blocks of {block_months} months" if block_months else "blocks of ceil(n^(1/3)) months"
     return ProbabilisticResult(
         wells=out[WELL_COLUMNS + [c for c in out.columns if c not in WELL_COLUMNS]],
