@@ -1525,6 +1525,23 @@ def _units_stage_view(previous: RunResult) -> pd.DataFrame:
     return previous.units
 
 
+def _rerun_notes_and_ranges(wells, monthly, prod, fits, settings, dsettings, as_of, overrides, previous, timings):
+    """Notes on unknown overrides and, with ``settings.samples``, the P90/P50/P10 of a re-run
+    (shared by :func:`rerun_wells` and :func:`rerun_forecast`); returns (wells, monthly,
+    probabilistic result or None, notes). The level-error calibration pools every well's
+    hindcast miss, so one well's new fit moves every well's samples: the probabilistic part
+    is recomputed for the whole field."""
+    notes = _unknown_override_note(overrides, pd.Index(pd.unique(prod["well_id"].astype(str))))
+    prob = None
+    if settings.samples:
+        t = time.perf_counter()
+        wells, monthly, prob, pnotes = _add_probabilistic(wells, monthly, prod, fits, settings, dsettings, as_of,
+                                                          overrides, _regime(previous.stages), previous.fluids)
+        notes += pnotes
+        timings["probabilistic"] = time.perf_counter() - t
+    return wells, monthly, prob, notes
+
+
 def rerun_wells(
     previous: RunResult,
     load: Any,
@@ -1614,16 +1631,8 @@ def rerun_wells(
         wells_t = _replace_rows(wells_t, new_w, ["well_id"])
         monthly = _splice_monthly(monthly, fmon, refit)
         timings["assemble"] = time.perf_counter() - t
-    notes = _unknown_override_note(overrides, pd.Index(pd.unique(prod["well_id"].astype(str))))
-    prob = None
-    if settings.samples:
-        # the level-error calibration pools every well's hindcast miss, so one well's new fit
-        # moves every well's samples: the probabilistic part is recomputed for the whole field
-        t = time.perf_counter()
-        wells_t, monthly, prob, pnotes = _add_probabilistic(wells_t, monthly, prod, fits, settings, dsettings, as_of,
-                                                            overrides, _regime(previous.stages), previous.fluids)
-        notes += pnotes
-        timings["probabilistic"] = time.perf_counter() - t
+    wells_t, monthly, prob, notes = _rerun_notes_and_ranges(wells_t, monthly, prod, fits, settings, dsettings,
+                                                            as_of, overrides, previous, timings)
     res = _finish(
         load, settings, overrides, prod_all, prod, as_of, load.report.copy(), wells_t, monthly,
         _units_stage_view(previous), previous.stages, fits, cands, previous.fluids, notes, timings, t0,
@@ -1696,14 +1705,8 @@ def rerun_forecast(
                             _actuals_per_well(prod))
     monthly = _assemble_monthly(prod, fmonthly, None)
     timings["assemble"] = time.perf_counter() - t
-    notes = _unknown_override_note(overrides, pd.Index(pd.unique(prod["well_id"].astype(str))))
-    prob = None
-    if settings.samples:
-        t = time.perf_counter()
-        wells, monthly, prob, pnotes = _add_probabilistic(wells, monthly, prod, fits, settings, dsettings, as_of,
-                                                          overrides, _regime(previous.stages), previous.fluids)
-        notes += pnotes
-        timings["probabilistic"] = time.perf_counter() - t
+    wells, monthly, prob, notes = _rerun_notes_and_ranges(wells, monthly, prod, fits, settings, dsettings, as_of,
+                                                          overrides, previous, timings)
     return _finish(
         load, settings, overrides, prod_all, prod, as_of, load.report.copy(), wells, monthly,
         _units_stage_view(previous), previous.stages, fits, previous.candidates, previous.fluids, notes,
