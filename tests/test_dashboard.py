@@ -111,6 +111,16 @@ def _frame_with(at: AppTest, column: str) -> pd.DataFrame:
     return found[0]
 
 
+def _apply_fixed_b(at: AppTest, b: float, reason: str, author: str | None = None) -> None:
+    """Apply a fixed-b override with a reason on the well page, as an engineer would."""
+    at.checkbox(key="ov_fix_b").check()
+    at.number_input(key="ov_b").set_value(b)
+    at.text_input(key="ov_reason").input(reason)
+    if author is not None:
+        at.text_input(key="ov_author").input(author)
+    at.button(key=APPLY_OVERRIDE).click().run()
+
+
 def _ok(at: AppTest) -> None:
     assert not at.exception, [e.value for e in at.exception]
     assert not at.error, [e.value for e in at.error]
@@ -244,11 +254,7 @@ def test_well_page_shows_core_numbers_and_an_override_refits_it(sample_run):
     assert facts["fit window starts after"] == str(row["fit_regime_source"])
     assert facts["fit window start"] == row["fit_start"].strftime("%Y-%m")
     # Apply an override: fixed b = 0.3, with a reason.
-    at.checkbox(key="ov_fix_b").check()
-    at.number_input(key="ov_b").set_value(0.3)
-    at.text_input(key="ov_reason").input("b from the unit's analogue wells")
-    at.text_input(key="ov_author").input("A. Engineer")
-    at.button(key=APPLY_OVERRIDE).click().run()
+    _apply_fixed_b(at, 0.3, "b from the unit's analogue wells", author="A. Engineer")
     _ok(at)
     import core.run
 
@@ -284,10 +290,7 @@ def test_overrides_and_flags_survive_a_new_session():
     at = _app()
     at.switch_page("views/well.py").run()
     well = at.selectbox(key="well_pick").value
-    at.checkbox(key="ov_fix_b").check()
-    at.number_input(key="ov_b").set_value(0.3)
-    at.text_input(key="ov_reason").input("workover in the window")
-    at.button(key=APPLY_OVERRIDE).click().run()
+    _apply_fixed_b(at, 0.3, "workover in the window")
     _ok(at)
     at.switch_page("views/planning.py").run()
     at.text_area(key="flag_note").input("pressure support study")
@@ -570,10 +573,7 @@ def test_override_goes_through_core_rerun_wells_when_core_has_it(sample_run, mon
     at = _app()
     at.switch_page("views/well.py").run()
     well = at.selectbox(key="well_pick").value
-    at.checkbox(key="ov_fix_b").check()
-    at.number_input(key="ov_b").set_value(0.45)
-    at.text_input(key="ov_reason").input("analogue b")
-    at.button(key=APPLY_OVERRIDE).click().run()
+    _apply_fixed_b(at, 0.45, "analogue b")
     _ok(at)
     assert len(calls) == 1
     previous, overrides, wells = calls[0]

@@ -25,6 +25,7 @@ import sqlalchemy as sa
 from tests import conftest_pg
 from core import __version__
 from core import storage
+from core.production import LoadResult
 from core.storage import (
     SCHEMA_VERSION,
     StoreError,
@@ -93,23 +94,6 @@ def store(store_url):
 
 
 @dataclasses.dataclass(frozen=True)
-class FakeLoad:
-    """Shaped like core.production.LoadResult (DEVELOPERS.md contract)."""
-
-    production: pd.DataFrame
-    wells: pd.DataFrame
-    report: pd.DataFrame
-    mapping: dict
-    rows_read: int
-    rows_used: int
-    rows_rejected: int
-    file_name: str
-    content_sha256: str
-    pressure_kind: str
-    messages: list
-
-
-@dataclasses.dataclass(frozen=True)
 class FakeSettings:
     as_of_month: pd.Timestamp
     economic_limit_bbl_d: float
@@ -131,7 +115,7 @@ class FakeRun:
     version: str
 
 
-def make_load(n_months: int = 6, *, oil_scale: float = 1.0, name: str = "lone_mesa_2026-09.csv") -> FakeLoad:
+def make_load(n_months: int = 6, *, oil_scale: float = 1.0, name: str = "lone_mesa_2026-09.csv") -> LoadResult:
     months = pd.date_range("2026-04-01", periods=n_months, freq="MS").astype("datetime64[ns]")
     wells = ["LM-01", "LM-02", "LM-03"]
     prod = pd.DataFrame({
@@ -155,11 +139,11 @@ def make_load(n_months: int = 6, *, oil_scale: float = 1.0, name: str = "lone_me
         "reason": pd.Series(["negative volume", "no gas column"], dtype="str"),
     })
     raw = prod.to_csv(index=False).encode()
-    return FakeLoad(prod, header, report, {"oil_bbl": "Oil (bbl)", "month": "Date"}, len(prod) + 1, len(prod), 1,
+    return LoadResult(prod, header, report, {"oil_bbl": "Oil (bbl)", "month": "Date"}, len(prod) + 1, len(prod), 1,
                     name, hashlib.sha256(raw).hexdigest(), "average_reservoir", ["1 row rejected"])
 
 
-def make_run(load: FakeLoad, *, eur_shift: float = 0.0) -> FakeRun:
+def make_run(load: LoadResult, *, eur_shift: float = 0.0) -> FakeRun:
     wells = pd.DataFrame({
         "well_id": pd.Series(["LM-01", "LM-02", "LM-03"], dtype="str"),
         "eur_oil_bbl": [120_000.0 + eur_shift, 95_000.0, np.nan],
