@@ -451,34 +451,13 @@ def _resid_jac_scaled(theta, t, y, need_b, exp_only):
 
 
 def _normal_eq(w, r, j_u, j_b, s_u=None, s_b=None, A=None, g=None):
-    """J^T W J (k, 3, 3) and -J^T W r (k, 3) with d r/d ln qi = -1.
+    """J^T W J (k, 3, 3) and -J^T W r (k, 3) with d r/d ln qi = -1: :func:`_normal_eq_robust`
+    with one weight for both (the IRLS weights).
 
     ``s_u``, ``s_b`` (k, 1): per-well factors of ``j_u`` and ``j_b`` (see
     :func:`_resid_jac_scaled`); ``A``, ``g``: output arrays (allocated when None).
     """
-    k = w.shape[0]
-    if A is None:
-        A = np.empty((k, 3, 3))
-    if g is None:
-        g = np.empty((k, 3))
-    su = 1.0 if s_u is None else s_u[:, 0]
-    wj_u = w * j_u
-    A[:, 0, 0] = w.sum(1)
-    A[:, 0, 1] = A[:, 1, 0] = -wj_u.sum(1) * su
-    A[:, 1, 1] = np.einsum("ij,ij->i", wj_u, j_u) * (su * su)
-    g[:, 0] = np.einsum("ij,ij->i", w, r)
-    g[:, 1] = -np.einsum("ij,ij->i", wj_u, r) * su
-    if j_b is not None:
-        sb = 1.0 if s_b is None else s_b[:, 0]
-        wj_b = w * j_b
-        A[:, 0, 2] = A[:, 2, 0] = -wj_b.sum(1) * sb
-        A[:, 1, 2] = A[:, 2, 1] = np.einsum("ij,ij->i", wj_u, j_b) * (su * sb)
-        A[:, 2, 2] = np.einsum("ij,ij->i", wj_b, j_b) * (sb * sb)
-        g[:, 2] = -np.einsum("ij,ij->i", wj_b, r) * sb
-    else:
-        A[:, 0, 2] = A[:, 2, 0] = A[:, 1, 2] = A[:, 2, 1] = A[:, 2, 2] = 0.0
-        g[:, 2] = 0.0
-    return A, g
+    return _normal_eq_robust(w, w, r, j_u, j_b, s_u, s_b, A, g)
 
 
 _EPS_CURV = np.finfo(float).eps  # floor of a curvature weight (scipy.optimize.least_squares)
