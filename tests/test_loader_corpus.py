@@ -362,12 +362,9 @@ _MUT = st.lists(st.tuples(st.sampled_from(["del", "ins", "rep"]), st.integers(0,
                                              b"\x00", b"=", b"13/13/2021", b"2099-01"])), max_size=6)
 
 
-@settings(max_examples=40, deadline=None, suppress_health_check=list(HealthCheck))
-@given(st.integers(0, len(_SEEDS) - 1), _MUT)
-def test_mutated_files_load_or_give_one_clear_message(i, muts):
-    """Any byte-level damage to a corpus file gives a LoadResult that keeps the accounting, or an
-    InputError with a one-line message naming the file; never another exception."""
-    b = bytearray(_SEEDS[i])
+def _mutate(data: bytes, muts) -> bytes:
+    """Apply byte-level damage: (op, position, bytes) with op del / ins / rep."""
+    b = bytearray(data)
     for op, pos, data in muts:
         pos %= len(b) + 1
         if op == "del":
@@ -376,8 +373,17 @@ def test_mutated_files_load_or_give_one_clear_message(i, muts):
             b[pos:pos] = data
         else:
             b[pos:pos + len(data)] = data
+    return bytes(b)
+
+
+@settings(max_examples=40, deadline=None, suppress_health_check=list(HealthCheck))
+@given(st.integers(0, len(_SEEDS) - 1), _MUT)
+def test_mutated_files_load_or_give_one_clear_message(i, muts):
+    """Any byte-level damage to a corpus file gives a LoadResult that keeps the accounting, or an
+    InputError with a one-line message naming the file; never another exception."""
+    b = _mutate(_SEEDS[i], muts)
     try:
-        res = load_production(bytes(b), file_name="mutated.csv", as_of=AS_OF)
+        res = load_production(b, file_name="mutated.csv", as_of=AS_OF)
     except InputError as exc:
         assert str(exc).startswith("mutated.csv: ")
         assert "\n" not in str(exc)
@@ -406,17 +412,9 @@ _WB = _seed_workbook()
                           st.binary(min_size=1, max_size=8)), min_size=1, max_size=4))
 def test_mutated_workbooks_load_or_give_one_clear_message(muts):
     """Damaged XLSX bytes (bad zip, bad deflate stream, bad XML) never escape as another exception."""
-    b = bytearray(_WB)
-    for op, pos, data in muts:
-        pos %= len(b) + 1
-        if op == "del":
-            del b[pos:pos + len(data)]
-        elif op == "ins":
-            b[pos:pos] = data
-        else:
-            b[pos:pos + len(data)] = data
+    b = _mutate(_WB, muts)
     try:
-        res = load_production(bytes(b), file_name="mutated.xlsx", as_of=AS_OF)
+        res = load_production(b, file_name="mutated.xlsx", as_of=AS_OF)
     except InputError as exc:
         assert str(exc).startswith("mutated.xlsx: ") and "\n" not in str(exc)
         return
