@@ -1407,19 +1407,23 @@ def _refit(prod: pd.DataFrame, fits_prev: pd.DataFrame, regime: Any, dsettings: 
         ok = True
         redo: set[str] = set(todo)
         new_stream = new_f["stream"].astype(str).to_numpy()
+        w_news = {}
         for s in streams:
             nf = new_f[new_stream == s]
             n_new = n_prev[s].copy()
             ix = pos[s].get_indexer(pd.Index(nf["well_id"].astype(str)))
             n_new[ix] = nf["n_months_used"].to_numpy(dtype=np.int64)
-            w_new = _batch_widths(n_new, dsettings)
+            w_news[s] = w_new = _batch_widths(n_new, dsettings)
             moved = set(order[s][w_new != w_prev[s]]) - set(todo)
             redo |= moved
             for w in todo:
                 if w in pos[s] and guess[w][s] != int(w_new[pos[s].get_loc(w)]):
                     ok = False
-            for w in redo:
-                guess.setdefault(w, {})[s] = int(w_new[pos[s].get_loc(w)])
+        # every well to redo gets a width guess for every stream (a well moved in one
+        # stream's layout may not have been in the re-fit before)
+        for w in redo:
+            for s in streams:
+                guess.setdefault(w, {})[s] = int(w_news[s][pos[s].get_loc(w)]) if w in pos[s] else 0
         if ok and redo == set(todo):
             return new_f, new_c, todo
         todo = sorted(redo)
