@@ -892,7 +892,7 @@ def _analyse(months: pd.DataFrame, surveys: pd.DataFrame, cumtab: pd.DataFrame, 
                                                   + np.char.mod("%.2f", np.nan_to_num(mb["scale"])).astype(object)
                                                   + " vs noise " + np.char.mod("%.2f", sigma).astype(object)
                                                   + "): GOR-only rules", "")))
-    if mb is not None and np.isfinite(mb["pwf"]).any():
+    if mb is not None and "pwf" in mb and np.isfinite(mb["pwf"]).any():
         has_q = mb_ok & np.isfinite(mb["pwf"]) & np.isfinite(mb["rate_scale"])
         q_note = np.where(mb["rate_used"],
                           "; oil rate per producing day matched as well (group flowing pressure "
@@ -903,6 +903,12 @@ def _analyse(months: pd.DataFrame, surveys: pd.DataFrame, cumtab: pd.DataFrame, 
                           + " vs noise " + np.char.mod("%.2f", np.nan_to_num(mb["rate_noise"])).astype(object) + ")")
         res.loc[sids[has_q], "mb_note"] = res.loc[sids[has_q], "mb_note"].to_numpy(object) + q_note[has_q]
         res.loc[sids, "rate_used"] = has_q & mb["rate_used"]
+    if mb is not None and mb["pwf_unresolved"].any():
+        un = mb_ok & mb["pwf_unresolved"]
+        res.loc[sids[un], "mb_note"] = (res.loc[sids[un], "mb_note"].to_numpy(object)
+                                        + "; oil rate not used (the group's flowing pressure is not resolved "
+                                          "by its rates: fewer than " + str(MB_RATE_MIN_WELLS) + " wells, or the best "
+                                          "fit at the edge of 15 psia to 30 % of Pb)")
     if mb is not None and mb_conflict.any():
         res.loc[sids[mb_conflict], "mb_note"] = ("material-balance GOR match not used: it puts the "
                                                  "crossing before a survey still above Pb")
@@ -996,6 +1002,9 @@ MB_RATE_MIN_SPLIT = 3
 #: 97.5/96.5/83.6 %, 40 wells 98.0/93.1/95.8/98.1/97.7/94.8 % (the flowing pressure is a
 #: group property: more wells, steadier choice); 10 sets instead of 6: no change.
 MB_RATE_TOP_SETS = 6
+#: A group flowing pressure is fitted only on at least this many wells (common practice:
+#: one well's rate shape confounds p_wf with its own productivity changes).
+MB_RATE_MIN_WELLS = 5
 MB_RATE_SELECT_WELLS = 40
 MB_RATE_PWF_POINTS = 12
 MB_RATE_PWF_MAX_FRAC = 0.3
@@ -1172,6 +1181,7 @@ def _mb_fit(Z, FS, FE, V, W, sigma, groups: np.ndarray, group_keys: list, survey
     out["rate_scale"] = np.full(ns, np.nan)
     out["rate_noise"] = np.full(ns, np.nan)
     out["rate_used"] = np.zeros(ns, bool)
+    out["pwf_unresolved"] = np.zeros(ns, bool)
     clip = (3.0 * sigma) ** 2
     Zc = np.where(V, Z, 0.0)
     if surveys is not None:
@@ -1256,10 +1266,12 @@ def _mb_fit(Z, FS, FE, V, W, sigma, groups: np.ndarray, group_keys: list, survey
         c = best_c
         grid = _mb_grid(c)
         pwf = None
-        if BQ is not None:
+        if BQ is not None and rows.size < MB_RATE_MIN_WELLS:
+            out["pwf_unresolved"][rows] = True
+        elif BQ is not None:
             # Corey set and flowing pressure together, on the GOR-ranked shortlist
             ranked.sort(key=lambda t: t[0])
-            best_j = (np.inf, None, None)
+            best_j = (np.inf, None, None, False)
             selq = rows[np.argsort(-nvalid[rows], kind="stable")[:MB_RATE_SELECT_WELLS]]
             for _, cc in ranked[:MB_RATE_TOP_SETS]:
                 # recovery factors near each well's GOR (+ survey) best on the coarse grid
@@ -1270,12 +1282,19 @@ def _mb_fit(Z, FS, FE, V, W, sigma, groups: np.ndarray, group_keys: list, survey
                 cand = np.linspace(15.0, MB_RATE_PWF_MAX_FRAC * key[3], MB_RATE_PWF_POINTS)
                 tots = pwf_totals(cc, gg, selq, cand)
                 st_ = cand[1] - cand[0]
-                cand = np.linspace(max(cand[tots.argmin()] - st_, 15.0), cand[tots.argmin()] + st_, 9)
+                k0 = int(tots.argmin())
+                inner = 0 < k0 < cand.size - 1
+                cand = np.linspace(max(cand[k0] - st_, 15.0), cand[k0] + st_, 9)
                 tots = pwf_totals(cc, gg, selq, cand)
                 if tots.min() < best_j[0]:
-                    best_j = (float(tots.min()), cc, float(cand[tots.argmin()]))
-            c, pwf = best_j[1], best_j[2]
-            grid = _mb_grid(c)
+                    best_j = (float(tots.min()), cc, float(cand[tots.argmin()]), inner)
+            if best_j[3]:
+                c, pwf = best_j[1], best_j[2]
+                grid = _mb_grid(c)
+            else:
+                # the best flowing pressure lies at the edge of the search range: the rates
+                # do not resolve it (wells early in life, p >> p_wf); GOR and surveys only
+                out["pwf_unresolved"][rows] = True
         rbest, lbest, allr, allL = profile(c, grid, rows, pwf, MB_REFINE_ROUNDS)
         rate_ok = np.zeros(rows.size, bool)
         if pwf is not None:

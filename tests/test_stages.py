@@ -784,3 +784,18 @@ def test_sample_field_unit_stages_follow_their_wells(sample_full):
         assert ("DISAGREES" in u["stage_evidence"]) == disagree
     lower = units.set_index("unit").loc["Lower Sand"]
     assert lower["share_stage_4"] == 1.0 and lower["stage"] == 4 and lower["planning_status"] == "window_passed"
+
+
+def test_sample_field_flowing_pressure_fitted_late_in_life_only(sample_full):
+    # Known answer: sample_wells/generate.py's minimum flowing pressures (Lower Sand 100 psia,
+    # North Lobe 150 psia), never shown to the tracker. The late-life units resolve it within
+    # 40 psia; the Upper Sand wells are all above the bubble point (p >> p_wf), where the rate
+    # cannot resolve p_wf: their evidence says the rate was not used, and why.
+    prod, ws, _ = sample_full
+    unit = prod.groupby("well_id")["unit"].first()
+    ev = ws.set_index("well_id")["stage_evidence"]
+    pwf = _group_pwf(ev).groupby(ev.index.map(unit)).median()
+    assert abs(pwf["Lower Sand"] - 100.0) <= 40.0
+    assert abs(pwf["North Lobe"] - 150.0) <= 40.0
+    upper = ev[ev.index.map(unit) == "Upper Sand"]
+    assert upper.str.contains("flowing pressure is not resolved").all()
