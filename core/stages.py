@@ -1296,7 +1296,6 @@ def _mb_fit(Z, FS, FE, V, W, sigma, groups: np.ndarray, group_keys: list, survey
                 # do not resolve it (wells early in life, p >> p_wf); GOR and surveys only
                 out["pwf_unresolved"][rows] = True
         rbest, lbest, allr, allL = profile(c, grid, rows, pwf, MB_REFINE_ROUNDS)
-        rate_ok = np.zeros(rows.size, bool)
         if pwf is not None:
             # the rate term stays only where the rates follow the path within their noise
             # (same rule as the GOR: robust scale <= MB_FIT_TOL x noise + MB_FIT_ABS_TOL);
