@@ -47,8 +47,8 @@ Method (all series are treated alike: a well, or a unit built from summed volume
   per producing day enters the match too: along the path, at a steady flowing pressure,
   q_o = J (kro / (mu_o Bo)) (p - p_wf) (Fetkovich 1973), so the shape of the rate decline
   against cumulative oil also places the well on its path (one p_wf per PVT group, fitted;
-  J free, with one step allowed). A well whose rates do not follow that shape within their
-  noise is matched on GOR and surveys only, and its evidence says so.
+  J free: a level, a slow drift and one step). A well whose rates do not follow that shape
+  within their noise is matched on GOR and surveys only, and its evidence says so.
 
 * A reservoir unit's stage is decided from its wells: the stage reached by the wells
   holding a majority of the unit's recent oil (common practice); its summed-volume GOR is
@@ -723,6 +723,8 @@ def _analyse(months: pd.DataFrame, surveys: pd.DataFrame, cumtab: pd.DataFrame, 
         np.add.at(Bo, (rr, bb), oil_m[V]); np.add.at(Bg, (rr, bb), gas_m[V]); np.add.at(Bn, (rr, bb), 1.0)
         np.minimum.at(Bs, (rr, bb), XS[V]); np.maximum.at(Be, (rr, bb), XE[V])
         Bd = np.zeros((ns, nb))
+        Bm = np.zeros((ns, nb))
+        np.add.at(Bm, (rr, bb), MI[V])
         if "dy" in m:
             DY = np.full((ns, L), np.nan); DY[code, pos] = m["dy"].to_numpy(float)
             np.add.at(Bd, (rr, bb), DY[V])
@@ -732,6 +734,7 @@ def _analyse(months: pd.DataFrame, surveys: pd.DataFrame, cumtab: pd.DataFrame, 
             FS = np.where(BV, Bs, 0.0) / cum_now[:, None]
             FE = np.where(BV, Be, 0.0) / cum_now[:, None]
             BQ = np.where(BV & (Bd > 0), np.log(Bo / Bd), np.nan)
+            BT = np.where(BV, Bm / Bn / 12.0, 0.0)
         # PVT groups: header values rounded (MB_GROUP_STEP); the largest MB_MAX_GROUPS groups
         # are matched, wells of other groups keep the GOR-only rules
         step = np.array(MB_GROUP_STEP)
@@ -766,7 +769,7 @@ def _analyse(months: pd.DataFrame, surveys: pd.DataFrame, cumtab: pd.DataFrame, 
             sv_m = (PX, PP, PV)
         mb = _mb_fit(BZ, np.nan_to_num(FS), np.nan_to_num(FE), BV & np.isfinite(FS), Bn, sigma, codes,
                      [tuple(float(v) for v in u) for u in uniq], sv_m,
-                     BQ if (MB_RATE_MATCH and rate_term and np.isfinite(BQ).any()) else None)
+                     BQ if (MB_RATE_MATCH and rate_term and np.isfinite(BQ).any()) else None, BT)
         mb_ok = mb["ok"] & hdr_ok
         rn = mb["rnow"]
         lo_r = mb["lo"]
@@ -907,8 +910,8 @@ def _analyse(months: pd.DataFrame, surveys: pd.DataFrame, cumtab: pd.DataFrame, 
         un = mb_ok & mb["pwf_unresolved"]
         res.loc[sids[un], "mb_note"] = (res.loc[sids[un], "mb_note"].to_numpy(object)
                                         + "; oil rate not used (the group's flowing pressure is not resolved "
-                                          "by its rates: fewer than " + str(MB_RATE_MIN_WELLS) + " wells, or the best "
-                                          "fit at the edge of 15 psia to 30 % of Pb)")
+                                          "by its rates: fewer than " + str(MB_RATE_MIN_WELLS) + " wells, or its "
+                                          "2-sigma interval reaches the edge of 15 psia to 30 % of Pb)")
     if mb is not None and mb_conflict.any():
         res.loc[sids[mb_conflict], "mb_note"] = ("material-balance GOR match not used: it puts the "
                                                  "crossing before a survey still above Pb")
@@ -982,14 +985,20 @@ MB_PEAK_CHI2 = 1.0
 #: day, q_o = J (kro / (mu_o Bo))(p) (p - p_wf) (pseudo-steady inflow with the productivity
 #: index scaled by the oil mobility: Fetkovich 1973; the classic way of putting a Tarner
 #: prediction on a time axis, e.g. Craft and Hawkins 1959, ch. 9 - from memory). With J
-#: free (one level, or two levels split at one month: a workover or a pump change) the
-#: shape of ln q against Np/N places the well on its path, and that shape is sharpest late
-#: in life, where the GOR is flat around its peak. Block rate noise: MAD of the second
+#: free (a level and a slow drift in time, plus one step at a workover or a lift change)
+#: the shape of ln q against Np/N places the well on its path, and that shape is sharpest
+#: late in life, where the GOR is flat around its peak. Block rate noise: MAD of the second
 #: differences of block ln q / sqrt(6); each block's squared residual is clipped at 3
-#: noise units; a two-level J costs MB_RATE_STEP_PENALTY (in units of that noise).
+#: noise units; a step costs MB_RATE_STEP_PENALTY (in units of that noise); the drift is a
+#: ridge, a drift of MB_RATE_DRIFT_SD per year costing half a noise unit. Without the drift
+#: term, wells whose J drifts by +-3-8 %/yr (skin) were dated within 3 months for only
+#: 53-66 % (seeds 2026/7); with it 86-90 %. MB_RATE_DRIFT_SD chosen among 0 (free drift),
+#: 0.008, 0.015, 0.03 on seeds 2026, 7 and the 240-well test set at drift 0 / 0.03 / 0.08:
+#: worst case 82.5 / 81.8 / 82.8 / 81.2 %.
 MB_RATE_MATCH = True
 MB_RATE_MIN_SIGMA = 0.02
 MB_RATE_STEP_PENALTY = 10.0
+MB_RATE_DRIFT_SD = 0.015
 #: Each block level of J needs at least this many blocks.
 MB_RATE_MIN_SPLIT = 3
 #: Group flowing pressure p_wf and Corey set, chosen together: the MB_RATE_TOP_SETS sets with
@@ -997,10 +1006,12 @@ MB_RATE_MIN_SPLIT = 3
 #: 15 psia to MB_RATE_PWF_MAX_FRAC x Pb then one refinement of 9 points, on the group's
 #: MB_RATE_SELECT_WELLS longest wells; each well's recovery factor is searched on the
 #: coarse-grid points within MB_RATE_LOCAL steps of its GOR (+ survey) best, then refined
-#: MB_RATE_SELECT_ROUNDS times. Measured (scripts/stage_accuracy.py, 600 wells, GOR peak
-#: month within 3 months, seeds 2026/7/11/99/314/1234): 20 selection wells 97.3/97.9/97.9/
-#: 97.5/96.5/83.6 %, 40 wells 98.0/93.1/95.8/98.1/97.7/94.8 % (the flowing pressure is a
-#: group property: more wells, steadier choice); 10 sets instead of 6: no change.
+#: MB_RATE_SELECT_ROUNDS times. p_wf counts as resolved when its ~2-sigma profile interval
+#: (MB_PROFILE_CHI2, each well's misfit in units of its own noise) lies inside the range.
+#: Measured before the drift term (scripts/stage_accuracy.py, 600 wells, GOR peak month
+#: within 3 months, seeds 2026/7/11/99/314/1234): 20 selection wells 97.3/97.9/97.9/97.5/
+#: 96.5/83.6 %, 40 wells 98.0/93.1/95.8/98.1/97.7/94.8 % (the flowing pressure is a group
+#: property: more wells, steadier choice); 10 sets instead of 6: no change.
 MB_RATE_TOP_SETS = 6
 #: A group flowing pressure is fitted only on at least this many wells (common practice:
 #: one well's rate shape confounds p_wf with its own productivity changes).
@@ -1114,21 +1125,24 @@ def _mb_loss_chunk(curve: dict, rnow: np.ndarray, fs: np.ndarray, fe: np.ndarray
         rp = np.minimum(((pp[:, None, :] - p_pred) / MB_SURVEY_SIGMA_PSIA) ** 2, 9.0)
         tot = tot + wp[:, None] * np.where(pv[:, None, :], rp, 0.0).sum(axis=2)
     if rq is not None:
-        lq, qv, wq, s2, pwf = rq
-        tot = tot + s2[:, None] * _mb_rate_misfit(curve, rnow, 0.5 * (fs + fe), lq, qv, wq, pwf)[0]
+        lq, qv, tq, wq, s2, pwf = rq
+        tot = tot + s2[:, None] * _mb_rate_misfit(curve, rnow, 0.5 * (fs + fe), lq, qv, tq, wq, pwf)[0]
     return tot
 
 
 def _mb_rate_misfit(curve: dict, rnow: np.ndarray, fm: np.ndarray, lq: np.ndarray, qv: np.ndarray,
-                    wq: np.ndarray, pwf: float) -> tuple[np.ndarray, np.ndarray]:
+                    tq: np.ndarray, wq: np.ndarray, pwf) -> tuple[np.ndarray, np.ndarray]:
     """Robust misfit of ln(oil rate per producing day) against the path's deliverability.
 
     ``fm``: block mid cumulative oil / cumulative oil to date; ``lq``: block ln(bbl/d);
-    ``qv``: valid blocks; ``wq``: 1 / (2 x block rate noise^2) per well; ``pwf`` [psia], one
-    value or one per well.
-    Model: ln q = ln J + ln(kro / (mu_o Bo)) + ln(p - p_wf), J one level or two levels split
-    at the best month (cost MB_RATE_STEP_PENALTY). Returns the misfit (wells x candidates,
-    in units of the noise variance / 2) and the residuals at the chosen levels.
+    ``qv``: valid blocks; ``tq``: block mid time [yr]; ``wq``: 1 / (2 x block rate noise^2)
+    per well; ``pwf`` [psia], one value or one per well.
+    Model: ln q = ln J(t) + ln(kro / (mu_o Bo)) + ln(p - p_wf), with ln J(t) = a + g t (a slow
+    productivity drift: skin build-up or clean-up) plus, when it lowers the misfit by more
+    than MB_RATE_STEP_PENALTY, one step at the best block (workover, lift change). The drift
+    and step are least squares in closed form (the step's gain for every split from
+    cumulative sums). Returns the misfit (wells x candidates, in units of the noise
+    variance / 2) and the residuals at the fitted J(t).
     """
     r = curve["r"]
     rm = rnow[:, :, None] * fm[:, None, :]
@@ -1139,37 +1153,54 @@ def _mb_rate_misfit(curve: dict, rnow: np.ndarray, fm: np.ndarray, lq: np.ndarra
         lg = np.interp(rm, r, curve["lnmob"] + np.log(np.maximum(curve["p"] - pwf, 1.0)))
     q3 = qv[:, None, :]
     d = np.where(q3, lq[:, None, :] - lg, 0.0)
-    cn = np.cumsum(qv, axis=1).astype(float)[:, None, :]
-    cs1 = np.cumsum(d, axis=2)
-    cs2 = np.cumsum(d * d, axis=2)
-    n, s1, s2 = cn[:, :, -1:], cs1[:, :, -1:], cs2[:, :, -1:]
+    nq = np.maximum(qv.sum(axis=1), 1).astype(float)
+    tm = np.where(qv, tq, 0.0).sum(axis=1) / nq
+    tc = np.where(qv, tq - tm[:, None], 0.0)                       # centred time, 0 off-block
+    n = nq[:, None]
+    stt = np.maximum((tc * tc).sum(axis=1), 1e-12)[:, None]
+    sd = d.sum(axis=2)
+    std = (d * tc[:, None, :]).sum(axis=2)
+    # one step after block k: h = 1 on later blocks; its gain once level and drift are fitted
+    cn = np.cumsum(qv, axis=1).astype(float)
+    n2 = (n - cn)[:, None, :]
+    st2 = -np.cumsum(tc, axis=1)[:, None, :]
+    sd2 = sd[:, :, None] - np.cumsum(d, axis=2)
+    hh = np.broadcast_to(n2 - n2 * n2 / n[:, :, None] - st2 * st2 / stt[:, :, None], d.shape)
+    hd = sd2 - n2 * (sd / n)[:, :, None] - st2 * (std / stt)[:, :, None]
+    ok_k = ((cn >= MB_RATE_MIN_SPLIT) & (n - cn >= MB_RATE_MIN_SPLIT))[:, None, :] & (hh > 1e-9)
     with np.errstate(divide="ignore", invalid="ignore"):
-        sse = (cs2 - cs1 ** 2 / cn) + ((s2 - cs2) - (s1 - cs1) ** 2 / (n - cn))
-    sse = np.where((cn >= MB_RATE_MIN_SPLIT) & (n - cn >= MB_RATE_MIN_SPLIT), sse, np.inf)
-    ks = sse.argmin(axis=2)[:, :, None]
-    sse_k = np.take_along_axis(sse, ks, axis=2)[:, :, 0]
-    sse0 = (s2 - s1 ** 2 / np.maximum(n, 1.0))[:, :, 0]
-    step = np.isfinite(sse_k) & (sse_k * wq[:, None] + MB_RATE_STEP_PENALTY < sse0 * wq[:, None])
-    c_k = np.take_along_axis(np.broadcast_to(cn, d.shape), ks, axis=2)
-    s1_k = np.take_along_axis(cs1, ks, axis=2)
+        gain = np.where(ok_k, hd * hd / hh, -np.inf)
+    ks = gain.argmax(axis=2)[:, :, None]
+    g_k = np.take_along_axis(gain, ks, axis=2)[:, :, 0]
+    step = np.isfinite(g_k) & (g_k * wq[:, None] > MB_RATE_STEP_PENALTY)
     with np.errstate(divide="ignore", invalid="ignore"):
-        mu0 = s1 / np.maximum(n, 1.0)
-        mu1 = s1_k / c_k
-        mu2 = (s1 - s1_k) / (n - c_k)
+        c = np.where(step, np.take_along_axis(hd, ks, axis=2)[:, :, 0] / np.take_along_axis(hh, ks, axis=2)[:, :, 0],
+                     0.0)
+    n2k = np.take_along_axis(np.broadcast_to(n2, d.shape), ks, axis=2)[:, :, 0]
+    st2k = np.take_along_axis(np.broadcast_to(st2, d.shape), ks, axis=2)[:, :, 0]
+    b0 = (sd - c * n2k) / n
+    if MB_RATE_DRIFT_SD > 0:
+        # ridge: a drift of MB_RATE_DRIFT_SD per year costs half a noise unit
+        lam = 1.0 / (2.0 * MB_RATE_DRIFT_SD ** 2 * wq[:, None])
+        b1 = (std - c * st2k) / (stt + lam)
+        pen = np.where(step, MB_RATE_STEP_PENALTY, 0.0) + b1 * b1 / (2.0 * MB_RATE_DRIFT_SD ** 2)
+    else:
+        b1 = (std - c * st2k) / stt
+        pen = np.where(step, MB_RATE_STEP_PENALTY, 0.0)
     pos = np.arange(d.shape[2])[None, None, :]
-    mu = np.where(step[:, :, None], np.where(pos <= ks, mu1, mu2), mu0)
-    e = np.where(q3, d - mu, np.nan)
+    fit = b0[:, :, None] + b1[:, :, None] * tc[:, None, :] + np.where(pos > ks, c[:, :, None], 0.0)
+    e = np.where(q3, d - fit, np.nan)
     t = np.where(q3, np.minimum(e * e * wq[:, None, None], 9.0), 0.0).sum(axis=2)
-    return t + np.where(step, MB_RATE_STEP_PENALTY, 0.0), e
+    return t + pen, e
 
 
 def _mb_fit(Z, FS, FE, V, W, sigma, groups: np.ndarray, group_keys: list, surveys: tuple | None = None,
-            BQ: np.ndarray | None = None) -> dict:
+            BQ: np.ndarray | None = None, BT: np.ndarray | None = None) -> dict:
     """Fit the current recovery factor of every well to its group's Tarner path.
 
     ``FS``/``FE``: cumulative oil at the start/end of each producing month divided by the
     well's cumulative oil to date; ``BQ``: block ln(oil per producing day) [ln(bbl/d)], or
-    None for no rate term. Returns arrays per well: ok, rnow, lo, hi, r_b, r_s2, r_pk,
+    None for no rate term; ``BT``: block mid time [yr]. Returns arrays per well: ok, rnow, lo, hi, r_b, r_s2, r_pk,
     gor_pk, scale, label, and with ``BQ`` pwf (group flowing pressure, psia), rate_used,
     rate_scale and rate_noise.
     """
@@ -1228,16 +1259,17 @@ def _mb_fit(Z, FS, FE, V, W, sigma, groups: np.ndarray, group_keys: list, survey
         WQ = 1.0 / (2.0 * sq_ ** 2)
 
     def pwf_totals(c, grid, sel, cand):
-        """Summed best misfit of the wells ``sel`` (coarse grid: one row per well) for each
-        flowing pressure in ``cand``, all (pressure, well) pairs in one batch."""
+        """Summed best misfit of the wells ``sel`` (coarse grid: one row per well), each in
+        units of its own noise variance (a log-likelihood scale), for each flowing pressure
+        in ``cand``; all (pressure, well) pairs in one batch."""
         lb = profile(c, np.tile(grid, (cand.size, 1)), np.tile(sel, cand.size), np.repeat(cand, sel.size),
                      MB_RATE_SELECT_ROUNDS)[1]
-        return lb.reshape(cand.size, sel.size).sum(axis=1)
+        return (lb.reshape(cand.size, sel.size) / sigma[sel] ** 2).sum(axis=1)
 
     def rq_of(idx, pwf):
         if BQ is None or pwf is None:
             return None
-        return LQ[idx], QV[idx], WQ[idx], sigma[idx] ** 2, pwf
+        return LQ[idx], QV[idx], BT[idx], WQ[idx], sigma[idx] ** 2, pwf
     for gi, key in enumerate(group_keys):
         rows = np.flatnonzero(groups == gi)
         if rows.size == 0:
@@ -1283,7 +1315,8 @@ def _mb_fit(Z, FS, FE, V, W, sigma, groups: np.ndarray, group_keys: list, survey
                 tots = pwf_totals(cc, gg, selq, cand)
                 st_ = cand[1] - cand[0]
                 k0 = int(tots.argmin())
-                inner = 0 < k0 < cand.size - 1
+                # resolved: the ~2-sigma profile interval of p_wf lies inside the range
+                inner = bool(min(tots[0], tots[-1]) >= tots[k0] + MB_PROFILE_CHI2)
                 cand = np.linspace(max(cand[k0] - st_, 15.0), cand[k0] + st_, 9)
                 tots = pwf_totals(cc, gg, selq, cand)
                 if tots.min() < best_j[0]:
@@ -1292,15 +1325,16 @@ def _mb_fit(Z, FS, FE, V, W, sigma, groups: np.ndarray, group_keys: list, survey
                 c, pwf = best_j[1], best_j[2]
                 grid = _mb_grid(c)
             else:
-                # the best flowing pressure lies at the edge of the search range: the rates
-                # do not resolve it (wells early in life, p >> p_wf); GOR and surveys only
+                # the ~2-sigma interval of the flowing pressure reaches the edge of the search
+                # range: the rates do not resolve it (wells early in life, p >> p_wf); GOR and
+                # surveys only
                 out["pwf_unresolved"][rows] = True
         rbest, lbest, allr, allL = profile(c, grid, rows, pwf, MB_REFINE_ROUNDS)
         if pwf is not None:
             # the rate term stays only where the rates follow the path within their noise
             # (same rule as the GOR: robust scale <= MB_FIT_TOL x noise + MB_FIT_ABS_TOL);
             # elsewhere (choked plateau, lift changes) the well is matched on GOR and surveys
-            e = _mb_rate_misfit(c, rbest[:, None], FM[rows], LQ[rows], QV[rows], WQ[rows], pwf)[1][:, 0, :]
+            e = _mb_rate_misfit(c, rbest[:, None], FM[rows], LQ[rows], QV[rows], BT[rows], WQ[rows], pwf)[1][:, 0, :]
             with warnings.catch_warnings():
                 warnings.simplefilter("ignore", RuntimeWarning)
                 q_scale = 1.4826 * np.nanmedian(np.abs(e - np.nanmedian(e, axis=1)[:, None]), axis=1)
@@ -1624,9 +1658,9 @@ def track_wells(
         notes). Wells whose header cannot be completed use the GOR-only rules either way.
     rate_match : bool, optional
         Also match each well's oil rate per producing day against the path's deliverability
-        at a steady flowing pressure (one flowing pressure per PVT group, fitted; one
-        productivity level, or two split at one month). Used for a well only where its rates
-        follow that shape within their noise (said in the evidence).
+        at a steady flowing pressure (one flowing pressure per PVT group, fitted; the
+        productivity index free as a level with a slow drift, plus one step). Used for a well
+        only where its rates follow that shape within their noise (said in the evidence).
 
     Returns
     -------

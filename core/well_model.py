@@ -233,6 +233,7 @@ def _simulate_arrays(
     survey_noise_psia: float,
     water_cut_start: float,
     water_cut_rise_per_yr: float,
+    j_drift_per_yr: float = 0.0,
 ) -> dict[str, Any]:
     n = len(months)
     # Uptime: a day or two lost in most months, occasional low-uptime and shut-in months
@@ -251,6 +252,9 @@ def _simulate_arrays(
     mult = np.ones(n)
     if workover_month is not None and 0 < workover_month < n:
         mult[workover_month:] = workover_factor
+    if j_drift_per_yr:
+        # slow productivity drift (skin build-up or clean-up): J x exp(drift x years)
+        mult = mult * np.exp(j_drift_per_yr * np.arange(n) / 12.0)
     # Effective producing time -> recovery factor along the precomputed path
     s = np.cumsum(productivity_bbl_d_psi * mult * days) / ooip_stb  # [1/psi]
     r_end = np.interp(s, curve.tau_1_psi, curve.r)
@@ -568,6 +572,7 @@ def synthetic_field(
     survey_share: float = 0.7,
     stage_weights: tuple[float, float, float, float] = (0.2, 0.25, 0.3, 0.25),
     non_oil_share: float = 0.0,
+    j_drift_per_yr: tuple[float, float] = (0.0, 0.0),
 ) -> SyntheticField:
     """A field of solution-gas-drive oil wells at all four depletion stages, with answers.
 
@@ -600,6 +605,10 @@ def synthetic_field(
         Share of wells simulated as gas-condensate (initial GOR 4,000-12,000 scf/STB) or
         wet-gas (25,000-90,000 scf/STB) wells by :func:`simulate_gas_well`; their truth has
         ``fluid`` set and ``final_stage`` NA. Default 0 (all solution-gas-drive oil wells).
+    j_drift_per_yr : (float, float), optional
+        Range of a slow drift of each oil well's productivity index, J x exp(drift x years),
+        drawn per well (uniform; skin build-up < 0, clean-up > 0). [1/yr] Default (0, 0): none;
+        drawn from its own random stream, so the other wells' draws do not change.
 
     Returns
     -------
@@ -624,6 +633,10 @@ def synthetic_field(
     check_range("non_oil_share", non_oil_share, 0.0, 1.0)
     rng = np.random.default_rng(seed)
     rng_gas = np.random.default_rng([int(seed), 1])  # own stream: oil wells unchanged by the option
+    drift = check_range("j_drift_per_yr", j_drift_per_yr, -0.5, 0.5, unit="1/yr")
+    if drift.shape != (2,) or drift[0] > drift[1]:
+        raise ValueError("j_drift_per_yr must be (low, high) with low <= high")
+    rng_drift = np.random.default_rng([int(seed), 2]) if drift.any() else None
     curves = [depletion_curve(f) for f in fluids]
     ndig = max(3, len(str(n_wells)))
 
@@ -683,6 +696,7 @@ def synthetic_field(
             workover_month=workover, workover_factor=wo_factor if workover is not None else 1.5,
             survey_every_months=surveys, survey_noise_psia=float(rng.uniform(15.0, 50.0)),
             water_cut_start=float(rng.uniform(0.0, 0.03)), water_cut_rise_per_yr=float(rng.uniform(0.0, 0.012)),
+            j_drift_per_yr=0.0 if rng_drift is None else float(rng_drift.uniform(*drift)),
         )
         m = len(a["months"])
         cols["well_id"].append(np.full(m, well_id, dtype=object))

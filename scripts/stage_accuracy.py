@@ -13,6 +13,7 @@ and prints the measured figures against the issue's targets:
 Usage::
 
     .venv/bin/python scripts/stage_accuracy.py [--wells 600] [--seed 2026] [--gor-only] [--no-rate]
+        [--j-drift 0.05]  # each well's productivity drifts by a random -0.05..+0.05 per year
     .venv/bin/python scripts/stage_accuracy.py --speed 10000
 """
 
@@ -56,9 +57,11 @@ def _unit_truth(production: pd.DataFrame, m: pd.DataFrame, months: int = 12) -> 
     return pd.Series(out, dtype=float)
 
 
-def measure(n_wells: int, seed: int, *, material_balance_fit: bool = True, rate_match: bool = True) -> dict:
-    """Run the pipeline on a synthetic field and return the accuracy figures."""
-    field = synthetic_field(n_wells, seed=seed)
+def measure(n_wells: int, seed: int, *, material_balance_fit: bool = True, rate_match: bool = True,
+            j_drift: float = 0.0) -> dict:
+    """Run the pipeline on a synthetic field and return the accuracy figures (``j_drift``:
+    each well's productivity index drifts by a random -j_drift..+j_drift per year)."""
+    field = synthetic_field(n_wells, seed=seed, j_drift_per_yr=(-j_drift, j_drift))
     load = load_production(field.production, file_name="synthetic.csv", well_header=field.wells)
     fluids = classify_field(load.production, load.wells)
     t0 = time.perf_counter()
@@ -145,15 +148,17 @@ def main(argv: list[str] | None = None) -> int:
     ap.add_argument("--seed", type=int, default=2026)
     ap.add_argument("--gor-only", action="store_true", help="switch off the material-balance GOR match")
     ap.add_argument("--no-rate", action="store_true", help="match GOR and surveys only, not the oil rate")
+    ap.add_argument("--j-drift", type=float, default=0.0,
+                    help="productivity drift per well, uniform in -X..+X per year (default 0)")
     ap.add_argument("--speed", type=int, default=0, help="time the tracker on this many wells instead")
     a = ap.parse_args(argv)
     if a.speed:
         speed(a.speed, a.seed)
         return 0
-    r = measure(a.wells, a.seed, material_balance_fit=not a.gor_only, rate_match=not a.no_rate)
+    r = measure(a.wells, a.seed, material_balance_fit=not a.gor_only, rate_match=not a.no_rate, j_drift=a.j_drift)
     print(f"synthetic field: {r['wells']} wells, seed {a.seed}, GOR noise 5-15 %, "
           f"material-balance match {'off' if a.gor_only else 'on'}, oil-rate match {'off' if a.no_rate else 'on'} "
-          f"(used for {100 * r['rate_used']:.0f} % of wells)")
+          f"(used for {100 * r['rate_used']:.0f} % of wells), productivity drift up to {a.j_drift:.2f}/yr")
     print(f"stage at end of history correct     {100 * r['stage_correct']:5.1f} %  (target >= 90 %)")
     print(f"GOR peak month within 3 months      {100 * r['peak_within_3']:5.1f} %  (target >= 80 %, "
           f"{r['n_passed']} wells past the peak, median error {r['peak_error_median']:.0f} months)")

@@ -377,8 +377,20 @@ def test_accuracy_bubble_point_month_with_surveys(accuracy):
 
 def test_accuracy_gor_peak_month_within_3_months(accuracy):
     # Issue 5 target: GOR peak month within 3 months for >= 80 % of wells past the peak.
-    # Measured 98.4 % on this set with the oil-rate term (78.1 % matching GOR and surveys only).
+    # Measured 82.8 % on this set with the oil-rate term (78.1 % matching GOR and surveys only).
     assert accuracy["peak_within_3"] >= 0.80
+
+
+def test_accuracy_gor_peak_month_with_productivity_drift():
+    # The same set with each well's productivity index drifting by a random -5..+5 % a year
+    # (skin build-up or clean-up, core.well_model j_drift_per_yr), which a rate match that
+    # assumed a constant J mistook for depletion (measured 53-66 % at +-3-8 %/yr before the
+    # drift term). Issue 5's 80 % must still hold; measured 84.7 % (GOR and surveys only 81.4 %).
+    from scripts.stage_accuracy import measure
+
+    r = measure(240, seed=11, j_drift=0.05)
+    assert r["peak_within_3"] >= 0.80
+    assert r["no_false_peak"] >= 0.95
 
 
 # ---------------------------------------------------------------------------------------
@@ -392,7 +404,7 @@ def test_rate_match_recovers_each_units_flowing_pressure(accuracy):
     # Known answer: the generator's minimum flowing pressure of each fluid/rock set
     # (core.well_model._default_fluids; unit U<k> uses set k-1), an input the tracker never
     # sees. It is fitted per PVT group from the shape of the oil rate late in life; measured
-    # errors 4-23 psia on this set, so 40 psia is the tolerance.
+    # errors 4-10 psia on this set, so 40 psia is a wide tolerance.
     from core.well_model import _default_fluids
 
     w = accuracy["wells_table"]

@@ -233,3 +233,21 @@ def test_volumes_stay_physical_for_any_knobs(n_months, j, ooip, gor_noise, shut,
     assert np.all(np.diff(r) >= 0)
     assert r[-1] <= depletion_curve(FLUID).prediction.recovery_at_abandonment + 1e-12
     assert 1 <= w.truth["final_stage"] <= 4
+
+
+def test_productivity_drift_knob_of_the_synthetic_field():
+    # Default (0, 0) leaves the field as before (own random stream); a falling productivity
+    # index (-10 %/yr) produces less oil from the same wells, the first month unchanged
+    # (drift factor exp(0) = 1).
+    from core.well_model import synthetic_field
+
+    a = synthetic_field(6, seed=3)
+    b = synthetic_field(6, seed=3, j_drift_per_yr=(0.0, 0.0))
+    pd.testing.assert_frame_equal(a.production, b.production)
+    c = synthetic_field(6, seed=3, j_drift_per_yr=(-0.1, -0.1))
+    first_a = a.production.groupby("well_id")["oil_bbl"].first()
+    first_c = c.production.groupby("well_id")["oil_bbl"].first()
+    assert np.allclose(first_a, first_c)
+    assert (c.production.groupby("well_id")["oil_bbl"].sum() < a.production.groupby("well_id")["oil_bbl"].sum()).all()
+    with pytest.raises(ValueError):
+        synthetic_field(6, seed=3, j_drift_per_yr=(0.1, -0.1))
