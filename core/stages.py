@@ -516,7 +516,6 @@ def _analyse(months: pd.DataFrame, surveys: pd.DataFrame, cumtab: pd.DataFrame, 
         res[c] = np.nan
     res["passed"] = False
     res["mb_ok"] = False
-    res["rate_used"] = False
     res["mb_straddle"] = False
     res["odd_note"] = ""
     for c in ("rsi_src", "pb_src", "bp_src", "peak_note", "mb_note"):
@@ -895,7 +894,7 @@ def _analyse(months: pd.DataFrame, surveys: pd.DataFrame, cumtab: pd.DataFrame, 
                                                   + np.char.mod("%.2f", np.nan_to_num(mb["scale"])).astype(object)
                                                   + " vs noise " + np.char.mod("%.2f", sigma).astype(object)
                                                   + "): GOR-only rules", "")))
-    if mb is not None and "pwf" in mb and np.isfinite(mb["pwf"]).any():
+    if mb is not None and np.isfinite(mb["pwf"]).any():
         has_q = mb_ok & np.isfinite(mb["pwf"]) & np.isfinite(mb["rate_scale"])
         q_note = np.where(mb["rate_used"],
                           "; oil rate per producing day matched as well (group flowing pressure "
@@ -905,7 +904,6 @@ def _analyse(months: pd.DataFrame, surveys: pd.DataFrame, cumtab: pd.DataFrame, 
                           "residual " + np.char.mod("%.2f", np.nan_to_num(mb["rate_scale"])).astype(object)
                           + " vs noise " + np.char.mod("%.2f", np.nan_to_num(mb["rate_noise"])).astype(object) + ")")
         res.loc[sids[has_q], "mb_note"] = res.loc[sids[has_q], "mb_note"].to_numpy(object) + q_note[has_q]
-        res.loc[sids, "rate_used"] = has_q & mb["rate_used"]
     if mb is not None and mb["pwf_unresolved"].any():
         un = mb_ok & mb["pwf_unresolved"]
         res.loc[sids[un], "mb_note"] = (res.loc[sids[un], "mb_note"].to_numpy(object)
@@ -1141,7 +1139,8 @@ def _mb_rate_misfit(curve: dict, rnow: np.ndarray, fm: np.ndarray, lq: np.ndarra
     productivity drift: skin build-up or clean-up) plus, when it lowers the misfit by more
     than MB_RATE_STEP_PENALTY, one step at the best block (workover, lift change). The drift
     and step are least squares in closed form (the step's gain for every split from
-    cumulative sums). Returns the misfit (wells x candidates, in units of the noise
+    cumulative sums; the split is chosen with the drift unpenalised, the ridge then applies
+    to the drift at that split). Returns the misfit (wells x candidates, in units of the noise
     variance / 2) and the residuals at the fitted J(t).
     """
     r = curve["r"]
