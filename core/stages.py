@@ -1492,7 +1492,7 @@ def months_to_peak_from_analogues(res: pd.DataFrame, analog: pd.DataFrame, as_of
 
 def _evidence(res: pd.DataFrame) -> list[str]:
     cols = ["stage", "rsi", "rsi_src", "pb", "pb_src", "bp_mi", "bp_src", "s2_mi", "pk_mi", "pk_gor",
-            "peak_cand_mi", "sigma", "n_gor", "n_surveys", "last_gor", "mb_note", "odd_note"]
+            "peak_cand_mi", "sigma", "n_gor", "n_surveys", "last_gor", "mb_note", "odd_note", "mb_ok"]
     out = []
     for r in res[cols].itertuples(index=False):
         if not np.isfinite(r.stage):
@@ -1504,7 +1504,11 @@ def _evidence(res: pd.DataFrame) -> list[str]:
             parts.append(f"below Pb from {_fmt_month(r.bp_mi)} ({r.bp_src})")
         if np.isfinite(r.s2_mi):
             parts.append(f"smoothed GOR back above Rsi from {_fmt_month(r.s2_mi)}")
-        if np.isfinite(r.pk_mi):
+        if np.isfinite(r.pk_mi) and r.mb_ok:
+            # declared by the match, not by the smoothed-GOR rule: say which
+            parts.append(f"GOR peak {r.pk_gor:.0f} scf/STB in {_fmt_month(r.pk_mi)}, confirmed by the "
+                         f"match (its ~1-sigma recovery-factor interval lies past the path's peak)")
+        elif np.isfinite(r.pk_mi):
             parts.append(f"GOR peak {r.pk_gor:.0f} scf/STB in {_fmt_month(r.pk_mi)}, confirmed by a "
                          f"sustained decline ({PEAK_HOLD_MONTHS} months below the peak by > "
                          f"{PEAK_DROP_K:g} x smoothed noise)")

@@ -811,3 +811,20 @@ def test_sample_field_flowing_pressure_fitted_late_in_life_only(sample_full):
     assert abs(pwf["North Lobe"] - 150.0) <= 40.0
     upper = ev[ev.index.map(unit) == "Upper Sand"]
     assert upper.str.contains("flowing pressure is not resolved").all()
+
+
+def test_peak_evidence_names_the_rule_that_declared_it(sample_full):
+    # The evidence must say which rule confirmed a peak: the material-balance match (profile
+    # interval past the path's peak) or, without a match, the smoothed-GOR sustained decline.
+    from core.fluids import classify_field
+
+    prod, ws, _ = sample_full
+    ev4 = ws.loc[ws["passed_gor_peak"].astype(bool), "stage_evidence"]
+    assert len(ev4) > 0
+    matched = ev4.str.contains("stage and dates from a material-balance GOR match")
+    assert matched.any()
+    assert ev4[matched].str.contains("confirmed by the match").all()
+    assert not ev4[matched].str.contains("sustained decline").any()
+    gor_only = track_wells(prod, None, classify_field(prod, None), material_balance_fit=False)
+    ev_g = gor_only.loc[gor_only["passed_gor_peak"].astype(bool), "stage_evidence"]
+    assert len(ev_g) > 0 and ev_g.str.contains("confirmed by a sustained decline").all()
