@@ -1172,20 +1172,24 @@ def _mb_rate_misfit(curve: dict, rnow: np.ndarray, fm: np.ndarray, lq: np.ndarra
     ks = gain.argmax(axis=2)[:, :, None]
     g_k = np.take_along_axis(gain, ks, axis=2)[:, :, 0]
     step = np.isfinite(g_k) & (g_k * wq[:, None] > MB_RATE_STEP_PENALTY)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        c = np.where(step, np.take_along_axis(hd, ks, axis=2)[:, :, 0] / np.take_along_axis(hh, ks, axis=2)[:, :, 0],
-                     0.0)
+    # level, drift and step at the chosen split: the 2 x 2 normal equations of (drift, step)
+    # once the level is profiled out (time is centred), the drift with its ridge
     n2k = np.take_along_axis(np.broadcast_to(n2, d.shape), ks, axis=2)[:, :, 0]
     st2k = np.take_along_axis(np.broadcast_to(st2, d.shape), ks, axis=2)[:, :, 0]
+    sd2k = np.take_along_axis(sd2, ks, axis=2)[:, :, 0]
+    hh0 = n2k - n2k * n2k / n
+    hd0 = sd2k - n2k * sd / n
+    lam = 1.0 / (2.0 * MB_RATE_DRIFT_SD ** 2 * wq[:, None]) if MB_RATE_DRIFT_SD > 0 else 0.0
+    a11 = stt + lam
+    with np.errstate(divide="ignore", invalid="ignore"):
+        det = a11 * hh0 - st2k * st2k
+        b1 = np.where(step, (std * hh0 - st2k * hd0) / det, std / a11)
+        c = np.where(step, (a11 * hd0 - st2k * std) / det, 0.0)
     b0 = (sd - c * n2k) / n
+    pen = np.where(step, MB_RATE_STEP_PENALTY, 0.0)
     if MB_RATE_DRIFT_SD > 0:
         # ridge: a drift of MB_RATE_DRIFT_SD per year costs half a noise unit
-        lam = 1.0 / (2.0 * MB_RATE_DRIFT_SD ** 2 * wq[:, None])
-        b1 = (std - c * st2k) / (stt + lam)
-        pen = np.where(step, MB_RATE_STEP_PENALTY, 0.0) + b1 * b1 / (2.0 * MB_RATE_DRIFT_SD ** 2)
-    else:
-        b1 = (std - c * st2k) / stt
-        pen = np.where(step, MB_RATE_STEP_PENALTY, 0.0)
+        pen = pen + b1 * b1 / (2.0 * MB_RATE_DRIFT_SD ** 2)
     pos = np.arange(d.shape[2])[None, None, :]
     fit = b0[:, :, None] + b1[:, :, None] * tc[:, None, :] + np.where(pos > ks, c[:, :, None], 0.0)
     e = np.where(q3, d - fit, np.nan)

@@ -828,3 +828,68 @@ def test_peak_evidence_names_the_rule_that_declared_it(sample_full):
     gor_only = track_wells(prod, None, classify_field(prod, None), material_balance_fit=False)
     ev_g = gor_only.loc[gor_only["passed_gor_peak"].astype(bool), "stage_evidence"]
     assert len(ev_g) > 0 and ev_g.str.contains("confirmed by a sustained decline").all()
+
+
+@pytest.mark.parametrize("drift_sd", [0.0, 0.015])
+def test_rate_misfit_levels_match_numpy_least_squares(monkeypatch, drift_sd):
+    # Check against a reference library: the closed-form level, drift and one-step fit of
+    # core.stages._mb_rate_misfit (cumulative sums over every split) gives the residuals of
+    # numpy.linalg.lstsq on the design [1, t, step] at the best split found by brute force
+    # (ridge on the drift as one extra row sqrt(lam) x b1 = 0), and the same clipped misfit.
+    import core.stages as st
+
+    monkeypatch.setattr(st, "MB_RATE_DRIFT_SD", drift_sd)
+    c = st._mb_curve(32.0, 0.72, 165.0, 1900.0, 2600.0, 0.04, 0.21, 0.15)
+    rng = np.random.default_rng(4)
+    nb = 30
+    fm = np.sort(rng.uniform(0.02, 1.0, nb))[None, :]
+    tq = (np.arange(nb) * 0.4 + rng.uniform(0, 0.1, nb))[None, :]
+    qv = np.ones((1, nb), bool)
+    qv[0, [4, 17]] = False                       # two blocks without a rate
+    rnow = np.array([[0.08, 0.12]])
+    wq = np.array([1.0 / (2 * 0.03 ** 2)])
+    lg = np.interp(rnow[0, 0] * fm[0], c["r"], c["lnmob"] + np.log(np.maximum(c["p"] - 150.0, 1.0)))
+    step_at = 20
+    lq = (lg + 5.0 - 0.04 * tq[0] + np.where(np.arange(nb) > step_at, 0.4, 0.0)
+          + rng.normal(0, 0.03, nb))[None, :]
+    lq = np.where(qv, lq, 0.0)
+    misfit, e = st._mb_rate_misfit(c, rnow, fm, lq, qv, tq, wq, 150.0)
+    for j in range(rnow.shape[1]):
+        g = np.interp(rnow[0, j] * fm[0], c["r"], c["lnmob"] + np.log(np.maximum(c["p"] - 150.0, 1.0)))
+        ok = qv[0]
+        d, t = (lq[0] - g)[ok], tq[0][ok]
+        tc = t - t.mean()
+        lam = 0.0 if drift_sd == 0 else 1.0 / (2 * drift_sd ** 2 * wq[0])
+        pos = np.flatnonzero(ok)
+
+        def solve(X):
+            A, y = X, d
+            if lam:
+                A = np.vstack([X, np.r_[0.0, np.sqrt(lam), np.zeros(X.shape[1] - 2)]])
+                y = np.r_[d, 0.0]
+            b = np.linalg.lstsq(A, y, rcond=None)[0]
+            return b, d - X @ b
+
+        # brute-force best split (unpenalised drift, as the closed form chooses it)
+        best = None
+        for k in range(nb):
+            n1 = (pos <= k).sum()
+            if n1 < st.MB_RATE_MIN_SPLIT or ok.sum() - n1 < st.MB_RATE_MIN_SPLIT:
+                continue
+            X = np.column_stack([np.ones_like(tc), tc, (pos > k).astype(float)])
+            sse = ((d - X @ np.linalg.lstsq(X, d, rcond=None)[0]) ** 2).sum()
+            if best is None or sse < best[0] - 1e-12:
+                best = (sse, k)
+        X0 = np.column_stack([np.ones_like(tc), tc])
+        sse0 = ((d - X0 @ np.linalg.lstsq(X0, d, rcond=None)[0]) ** 2).sum()
+        use_step = (sse0 - best[0]) * wq[0] > st.MB_RATE_STEP_PENALTY
+        X = np.column_stack([X0, (pos > best[1]).astype(float)]) if use_step else X0
+        b, res = solve(X)
+        assert np.allclose(e[0, j][ok], res, atol=1e-9)
+        expect = np.minimum(res ** 2 * wq[0], 9.0).sum() + (st.MB_RATE_STEP_PENALTY if use_step else 0.0)
+        if lam:
+            expect += b[1] ** 2 / (2 * drift_sd ** 2)
+        assert misfit[0, j] == pytest.approx(expect, rel=1e-9)
+        if j == 0:
+            # at the true recovery factor the step branch is exercised, where it was put
+            assert use_step and abs(best[1] - step_at) <= 1
